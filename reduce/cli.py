@@ -1,0 +1,99 @@
+"""The ``cracktip`` command.
+
+Exit status: 0 when every row reduced, 2 when any row or the input as a
+whole could not be used (the message says which), 1 never on purpose.
+"""
+
+from __future__ import annotations
+
+import argparse
+import json
+import sys
+
+from reduce._version import __version__
+from reduce.errors import CracktipError
+
+EXIT_OK, EXIT_BAD_INPUT = 0, 2
+
+
+def _json_default(x):
+    if hasattr(x, "item"):
+        return x.item()
+    raise TypeError(f"not JSON-serialisable: {type(x).__name__}")
+
+
+def results_json(results) -> str:
+    """The results as the documented JSON list."""
+    return json.dumps([r.to_dict() for r in results], indent=2, default=_json_default, allow_nan=False)
+
+
+def cmd_reduce(args) -> int:
+    from reduce.atomic import write_text_atomic
+    from reduce.pipeline import reduce_sheet
+    from reduce.rules import rule_set
+    from reports.table import summary_table
+
+    rows = reduce_sheet(args.sheet, args.rules)
+    results = [r for r, _, _ in rows]
+    print(summary_table(results, rule_set(args.rules)["title"]))
+    if args.json:
+        write_text_atomic(args.json, results_json(results) + "\n")
+        print(f"results written to {args.json}")
+    if args.xlsx:
+        from reports.workbook import write_workbook
+
+        write_workbook(args.xlsx, rows)
+        print(f"workbook written to {args.xlsx}")
+    return EXIT_OK if all(r.error is None for r in results) else EXIT_BAD_INPUT
+
+
+def add_reduce_command(sub) -> None:
+    r = sub.add_parser("reduce", help="reduce every row of a test sheet")
+    r.add_argument("sheet", help="test sheet (.csv or .xlsx), one row per specimen")
+    add_rules_option(r)
+    r.add_argument("--json", metavar="OUT", help="write the results as JSON")
+    r.add_argument("--xlsx", metavar="OUT", help="write the results as an Excel workbook")
+    r.set_defaults(func=cmd_reduce)
+
+
+def add_rules_option(parser) -> None:
+    parser.add_argument("--rules", default="e399", choices=("e399", "iso12737"),
+                        help="rule set (default e399)")
+
+
+#: each command lives in its own module and registers itself with one function;
+#: the modules are imported only when the parser is built, the heavy libraries
+#: only when a command runs.
+COMMANDS = [
+    ("reduce.cli", "add_reduce_command"),
+]
+
+
+def build_parser() -> argparse.ArgumentParser:
+    import importlib
+
+    p = argparse.ArgumentParser(
+        prog="cracktip",
+        description="Reduce fracture-toughness test records (ASTM E399 / ISO 12737) to K_Q, "
+                    "validity and K_Ic, and issue certificates.")
+    p.add_argument("--version", action="version", version=f"cracktip {__version__}")
+    sub = p.add_subparsers(dest="command", required=True)
+    for module, func in COMMANDS:
+        getattr(importlib.import_module(module), func)(sub)
+    return p
+
+
+def main(argv=None) -> int:
+    args = build_parser().parse_args(argv)
+    try:
+        return args.func(args)
+    except CracktipError as exc:
+        print(f"cracktip: {exc}", file=sys.stderr)
+        return EXIT_BAD_INPUT
+    except OSError as exc:
+        print(f"cracktip: {exc.filename or ''}: {exc.strerror or exc}", file=sys.stderr)
+        return EXIT_BAD_INPUT
+
+
+if __name__ == "__main__":
+    sys.exit(main())

@@ -1,0 +1,75 @@
+"""The secant construction on synthetic records with known answers.
+
+The records come from reduce.synthetic, whose 5 % secant point is known in
+closed form (see its docstring); they are invented, not measured.
+"""
+
+import numpy as np
+import pytest
+
+from reduce.construction import initial_slope, secant_construction
+from reduce.errors import ReductionError
+from reduce.synthetic import curve_load, make_record, secant_point
+
+
+def test_closed_form_secant_point_against_root_finder():
+    # independent path: scipy's brentq on P(v) - 0.95 k v
+    from scipy.optimize import brentq
+
+    k, P_y, m = 40.0, 30.0, 6.0
+    v5, P5 = secant_point(k, P_y, m)
+    root = brentq(lambda v: curve_load(v, k, P_y, m) - 0.95 * k * v, 1e-6, 10.0)
+    assert v5 == pytest.approx(root, rel=1e-9)
+
+
+@pytest.mark.parametrize("kind", ["I", "II", "III"])
+@pytest.mark.parametrize("noise", [0.0, 0.03])
+def test_curve_types_and_P_Q(kind, noise):
+    rec = make_record(kind, noise_kN=noise, offset_mm=0.05, toe_mm=0.02, seed=7)
+    res = secant_construction(rec.load_kN, rec.disp_mm)
+    assert res.curve_type == kind
+    assert res.P_Q == pytest.approx(rec.P_Q, rel=0.01)
+    assert res.P_max >= res.P_Q
+
+
+def test_type_one_P5_close_to_closed_form():
+    rec = make_record("I", m=8.0)
+    res = secant_construction(rec.load_kN, rec.disp_mm)
+    assert res.P_5 == pytest.approx(rec.P_5, rel=0.005)
+
+
+@pytest.mark.parametrize("seed", range(12))
+def test_noise_does_not_turn_type_I_into_type_II(seed):
+    # noise of 0.3 % of P_max on a smooth record, 3000 samples
+    rec = make_record("I", n=3000, noise_kN=0.09, seed=seed)
+    res = secant_construction(rec.load_kN, rec.disp_mm)
+    assert res.curve_type == "I"
+    assert res.P_Q == pytest.approx(rec.P_Q, rel=0.01)
+
+
+def test_a_real_pop_in_is_still_found_with_noise():
+    rec = make_record("II", noise_kN=0.05, pop_drop=0.04, seed=1)
+    res = secant_construction(rec.load_kN, rec.disp_mm)
+    assert res.curve_type == "II"
+
+
+def test_origin_offset_is_removed():
+    rec = make_record("I", offset_mm=0.3)
+    fit = initial_slope(rec.load_kN, rec.disp_mm)
+    assert fit.origin_mm == pytest.approx(0.3, abs=0.003)
+    assert fit.slope == pytest.approx(40.0, rel=0.01)
+
+
+def test_fracture_before_secant_is_type_III_with_P_Q_P_max():
+    rec = make_record("III", fracture_fraction=0.7)
+    res = secant_construction(rec.load_kN, rec.disp_mm)
+    assert res.curve_type == "III"
+    assert res.P_5 is None
+    assert res.P_Q == pytest.approx(rec.P_max, rel=1e-9)
+
+
+def test_record_without_rising_part_is_refused():
+    with pytest.raises(ReductionError, match="linear rising part"):
+        initial_slope(np.array([1.0, 1.0, 1.0]), np.array([0.0, 1.0, 2.0]))
+    with pytest.raises(ReductionError, match="no positive load"):
+        initial_slope(np.zeros(50), np.linspace(0, 1, 50))
