@@ -71,3 +71,44 @@ class ReductionError(CracktipError, ValueError):
 
 class RulesError(CracktipError, ValueError):
     """An unknown rule set or a malformed limits file."""
+
+
+class SpecError(CracktipError, ValueError):
+    """A customer specification file (TOML) is missing, malformed or inconsistent.
+
+    Parameters
+    ----------
+    problem : str
+        What is wrong and what was expected, in words.
+    file : str, optional
+        The specification file.
+    where : str, optional
+        The place in it, e.g. ``"requirement 2 (L-T at 21 °C)"``.
+    key, value
+        The key and the value found, as far as known.
+    """
+
+    def __init__(self, problem, file=None, where=None, key=None, value=None):
+        self.problem = problem
+        self.file, self.where, self.key, self.value = file, where, key, value
+        parts = [str(p) for p in (file, where) if p is not None]
+        if key is not None:
+            parts.append(f"key '{key}'")
+        if value is not None:
+            parts.append(f"value {value!r}")
+        where_text = ", ".join(parts)
+        super().__init__(f"{where_text}: {problem}" if where_text else problem)
+
+
+class StoreError(CracktipError, RuntimeError):
+    """The QA database cannot be opened, is of an unknown schema, or refuses a write."""
+
+
+class ApprovalError(CracktipError, ValueError):
+    """A QA step is not allowed in the present state (e.g. approving a heat whose
+    verdict changed, or issuing a certificate before approval)."""
+
+
+class ReportError(CracktipError, ValueError):
+    """A report cannot be made or read: a bad lab profile, a certificate
+    without its embedded results, a heat that may not be certified."""

@@ -84,7 +84,46 @@ class Specimen:
             "temperature_C": self.temperature_C, "orientation": self.orientation,
             "precrack_Kmax_MPa_sqrt_m": self.precrack_Kmax, "dims_mm": dict(self.dims),
             "record": self.record, "metadata": dict(self.metadata),
+            "poisson": self.poisson, "displacement_type": self.displacement_type,
+            "load_column": self.load_column, "displacement_column": self.displacement_column,
+            "load_unit": self.load_unit, "displacement_unit": self.displacement_unit,
         }
+
+    @classmethod
+    def from_description(cls, d: dict, *, sheet: str | None = None) -> "Specimen":
+        """Rebuild a specimen from :meth:`describe` output (e.g. embedded in a certificate).
+
+        Parameters
+        ----------
+        d : dict
+            The description; keys as :meth:`describe` writes them.
+        sheet : str, optional
+            A sheet path; a relative ``record`` is then taken from its folder.
+
+        Raises
+        ------
+        KeyError
+            If a required key (specimen, geometry, B_mm, W_mm, a_readings_mm,
+            yield_MPa, E_MPa) is missing.
+
+        >>> s = Specimen("X1", "C(T)", B=25, W=50, a_readings=(25, 25.2, 25.1),
+        ...              yield_MPa=500, E_MPa=205000, heat="H1", surface=(24.9, 25.0))
+        >>> Specimen.from_description(s.describe()) == s
+        True
+        """
+        return cls(
+            specimen=d["specimen"], geometry=d["geometry"], B=d["B_mm"], W=d["W_mm"],
+            a_readings=tuple(d["a_readings_mm"]), yield_MPa=d["yield_MPa"], E_MPa=d["E_MPa"],
+            B_N=d.get("B_N_mm"), S=d.get("S_mm"), surface=tuple(d.get("surface_mm") or ()),
+            precrack_Kmax=d.get("precrack_Kmax_MPa_sqrt_m"), heat=d.get("heat"),
+            temperature_C=d.get("temperature_C"), orientation=d.get("orientation"),
+            tensile_MPa=d.get("tensile_MPa"), poisson=d.get("poisson"),
+            displacement_type=d.get("displacement_type"), dims=dict(d.get("dims_mm") or {}),
+            record=d.get("record"), load_column=d.get("load_column"),
+            displacement_column=d.get("displacement_column"), load_unit=d.get("load_unit"),
+            displacement_unit=d.get("displacement_unit"), metadata=dict(d.get("metadata") or {}),
+            sheet=sheet,
+        )
 
 
 @dataclass
@@ -125,6 +164,22 @@ class Result:
     error: str | None = None
     specimen_data: dict = field(default_factory=dict)
     extra: dict = field(default_factory=dict)
+    #: where the construction's points lie, mm from the corrected origin, and
+    #: the secant's slope, kN/mm (for plots)
+    v_5_mm: float | None = None
+    v_Q_mm: float | None = None
+    v_max_mm: float | None = None
+    secant_slope_kN_per_mm: float | None = None
+    #: crack length the initial slope implies through the geometry's compliance
+    #: relation, mm (``None`` where no relation is held or it could not be found)
+    a_compliance_mm: float | None = None
+    #: where the displacement was measured, and the crack-front scheme used for a
+    displacement_type: str | None = None
+    crack_front_scheme: str | None = None
+    #: limitations of the geometry definition (:attr:`specimens.Geometry.caveat`)
+    #: and failed advisory checks, in words; reports print both
+    caveats: list = field(default_factory=list)
+    warnings: list = field(default_factory=list)
 
     @property
     def K_Q_ksi_sqrt_in(self) -> float | None:
@@ -143,12 +198,17 @@ class Result:
             "fit_window_fraction_of_P_max": (list(self.fit_window_fraction_of_P_max)
                                              if self.fit_window_fraction_of_P_max else None),
             "origin_offset_mm": self.origin_offset_mm,
+            "secant_slope_kN_per_mm": self.secant_slope_kN_per_mm,
+            "v_5_mm": self.v_5_mm, "v_Q_mm": self.v_Q_mm, "v_max_mm": self.v_max_mm,
             "a_mm": self.a_mm, "a_over_W": self.a_over_W, "f_a_over_W": self.f_a_over_W,
+            "a_compliance_mm": self.a_compliance_mm, "displacement_type": self.displacement_type,
+            "crack_front_scheme": self.crack_front_scheme,
             "K_Q_MPa_sqrt_m": self.K_Q_MPa_sqrt_m, "K_Q_ksi_sqrt_in": self.K_Q_ksi_sqrt_in,
             "valid": self.valid, "K_Ic_MPa_sqrt_m": self.K_Ic_MPa_sqrt_m,
             "K_rate_MPa_sqrt_m_per_s": self.K_rate_MPa_sqrt_m_per_s,
             "checks": [c.to_dict() if hasattr(c, "to_dict") else dict(c) for c in self.checks],
             "reasons": list(self.reasons),
+            "caveats": list(self.caveats), "warnings": list(self.warnings),
             "record": self.record, "record_sha256": self.record_sha256,
             "record_notes": list(self.record_notes),
             "error": self.error,

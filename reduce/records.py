@@ -19,17 +19,22 @@ How a text record is read, and why:
 3. Rows with empty, NaN or text cells in the used channels are dropped and
    listed in :attr:`Record.notes`; one bad row never loses the others.
 
-Speed notes (measured with pandas 3.1 on this project's machine, 1,000,000
-rows): ``usecols`` makes the C parser about twice as slow as a plain parse,
-so when every column of the sniffed data lines is numeric the record is
-parsed whole and the unused columns are dropped at once; ``usecols`` is kept
-for records whose unused columns hold text (where it avoids building
-strings).  Decoding through a Python codec (``cp1252``) costs about three
-times the parse, so 8-bit records are parsed as UTF-8 with replacement: the
-data lines are ASCII in UTF-8, Latin-1 and cp1252 alike, and the header,
-which may not be, was decoded with the right codec in step 1.  The SHA-256 of
-a large file is computed in a second thread while pandas parses (hashlib and
-the pandas tokenizer both release the GIL).
+Speed notes (measured with pandas 3.1 on this project's 2-core machine, a
+1,000,000-row CSV).  pandas 3.1 splits a large file across threads, but only
+without ``usecols``, without ``on_bad_lines="warn"`` and with a UTF-8
+encoding; otherwise it parses serially, about twice as slowly.  So:
+
+- when every field of the sniffed data lines is numeric, the record is parsed
+  whole and the unused columns are dropped at once; ``usecols`` is used only
+  when other columns hold text, or after a line with too many fields;
+- lines with too many fields are found from the parser's error, not by
+  ``on_bad_lines="warn"``;
+- 8-bit records are parsed as UTF-8 with replacement: the data lines are
+  ASCII in UTF-8, Latin-1 and cp1252 alike, and the header, which may not be,
+  was decoded with the right codec in step 1;
+- the SHA-256 of a file above 1 MiB is computed in a second thread while
+  pandas parses (hashlib releases the GIL); on two cores this hides about
+  half of its cost.
 
 References
 ----------
@@ -56,7 +61,7 @@ import stat
 import warnings
 from concurrent.futures import ThreadPoolExecutor
 from dataclasses import dataclass, field
-from itertools import islice
+from itertools import chain, islice
 
 import numpy as np
 
@@ -123,8 +128,11 @@ _EMPTY, _NUM, _TEXT = 0, 1, 2
 #: (delimiter, decimal mark) tried in this order; " " means any whitespace
 _TEXT_LAYOUTS = [(",", "."), ("\t", "."), ("\t", ","), (";", "."), (";", ","), ("|", "."),
                  ("|", ","), (" ", "."), (" ", ",")]
+#: bytes no text record holds (tab, line feed, form feed, carriage return and
+#: the DOS end-of-file mark 0x1A are allowed)
+_CONTROL_BYTES = bytes([*range(0, 9), 11, *range(14, 26), *range(27, 32), 127])
 _LINE_BREAK = re.compile(r"\r\n|\r|\n")
-_SKIPPED_LINE = re.compile(r"Skipping line (\d+)")
+_LONG_LINE = re.compile(r"Expected \d+ fields in line (\d+)")
 
 
 @dataclass
@@ -136,7 +144,8 @@ class Record:
     path : str
         The file as given.
     load_kN : numpy.ndarray of float64, shape (n,)
-        Load, kN.
+        Load, kN.  All three arrays are read-only: a record holds what the
+        file says (see ``sha256``); copy an array to change it.
     disp_mm : numpy.ndarray of float64, shape (n,)
         Displacement, mm.
     time_s : numpy.ndarray of float64, shape (n,), or None
@@ -196,6 +205,7 @@ class _Values:
     values: np.ndarray  # float64, NaN where empty or text
     text: np.ndarray | None  # bool, True where the cell held text; None if none did
     first_text: object = None  # the first text cell, for messages
+    shared: bool = False  # values is a view into parsed data that holds unused columns too
 
 
 # --------------------------------------------------------------------------
@@ -229,7 +239,7 @@ def sha256_file(path) -> str:
     >>> import tempfile
     >>> with tempfile.NamedTemporaryFile(delete=False) as f:
     ...     _ = f.write(b"abc")
-    >>> sha256_file(f.name)[:16]  # FIPS 180-4 example "abc", Appendix B.1 of the 2002 edition
+    >>> sha256_file(f.name)[:16]  # FIPS 180-2 appendix B.1, message "abc" (value from memory)
     'ba7816bf8f01cfea'
     >>> os.remove(f.name)
     """
@@ -629,8 +639,9 @@ def _detect(path, columns, role, exclude):
         if role == "time":
             return None, []
         raise RecordError(
-            f"no {_ROLE_WORD[role]} channel recognised among the columns found ({_listing(columns)}); "
-            f"set {_SETTLE[role]} in the test sheet to its header or 1-based number"
+            f"no {_ROLE_WORD[role]} channel recognised among the columns found "
+            f"({_listing(columns)}); set {_SETTLE[role]} in the test sheet to its header or "
+            "1-based number"
             f" (and {_UNIT_SETTLE[role]} if its header has no unit)", file=path)
     if len(ranked) > 1 and ranked[0][0] == ranked[1][0]:
         if role == "time":
@@ -641,18 +652,19 @@ def _detect(path, columns, role, exclude):
             f"cannot tell which column is the {_ROLE_WORD[role]}: "
             + ", ".join(f"'{c.header}'" for c in tied)
             + f" are equally good candidates (columns found: {_listing(columns)}); "
-            f"set {_SETTLE[role]} in the test sheet to the header or 1-based number of the one to use",
-            file=path)
+            f"set {_SETTLE[role]} in the test sheet to the header or 1-based number of the one "
+            "to use", file=path)
     best = ranked[0][1]
     notes = []
     if role == "disp":
-        passed = [c for r, c in ranked[1:] if r[0] < ranked[0][0][0]]
-        if ranked[0][0][0] == _RANK_OPENING and passed:
-            notes.append(f"displacement from crack-opening channel '{best.header}'; "
-                         + ", ".join(f"'{c.header}'" for c in passed) + " not used")
-        elif ranked[0][0][0] == _RANK_MACHINE:
+        passed = ", ".join(f"'{c.header}'" for _, c in ranked[1:])
+        kind = {_RANK_OPENING: "crack-opening channel", _RANK_GENERIC: "channel"}
+        if ranked[0][0][0] == _RANK_MACHINE:
             notes.append(f"displacement from machine channel '{best.header}': it includes the "
                          "machine's and fixture's compliance and is not crack opening")
+        elif passed:
+            notes.append(f"displacement from {kind.get(ranked[0][0][0], 'channel')} "
+                         f"'{best.header}'; {passed} not used")
     return best, notes
 
 
@@ -732,23 +744,36 @@ def _decode_head(path, head, truncated):
     if b"\x00" in head:
         raise RecordError("contains NUL bytes: a binary file (or UTF-16 without byte-order mark), "
                           "not a text record; expected CSV, TSV, text or XLSX", file=path)
-    controls = sum(head.count(bytes([b])) for b in (*range(0, 9), 11, *range(14, 26), 27, 127))
+    head, complete = _first_lines(head, _HEAD_LINES)
+    controls = len(head) - len(head.translate(None, _CONTROL_BYTES))
     if controls > 0.01 * len(head):
         raise RecordError("contains control bytes: a binary file, not a text record; "
                           "expected CSV, TSV, text or XLSX", file=path)
-    if truncated:
+    if truncated and not complete:
         cut = max(head.rfind(b"\n"), head.rfind(b"\r"))
         if cut < 0:
             raise RecordError(f"no line break in the first {_HEAD_BYTES} bytes; not a record",
                               file=path)
         head = head[: cut + 1]
+    truncated = truncated and not complete
     try:
         text, note = head.decode("utf-8-sig"), None
     except UnicodeDecodeError:
-        text, note = head.decode("cp1252", errors="replace"), "header read as Latin-1/cp1252 (not UTF-8)"
+        text = head.decode("cp1252", errors="replace")
+        note = "header read as Latin-1/cp1252 (not UTF-8)"
     # The data lines are ASCII either way, and pandas's own UTF-8 decoder is
     # about three times as fast as a Python codec (see the module notes).
     return _lines(text, truncated), "utf-8-sig", note
+
+
+def _first_lines(head, n):
+    """The bytes of the first n lines (through the n-th line feed) and whether there were n."""
+    end = -1
+    for _ in range(n):
+        end = head.find(b"\n", end + 1)
+        if end < 0:
+            return head, False
+    return head[: end + 1], True
 
 
 def _lines(text, truncated):
@@ -763,7 +788,10 @@ def _lines(text, truncated):
 def _text_layout(path, lines):
     """Delimiter, decimal mark, first data line and the rows split by that delimiter."""
     best = None
+    text = "\n".join(lines)
     for sep, decimal in _TEXT_LAYOUTS:
+        if (sep != " " and sep not in text) or (decimal == "," and "," not in text):
+            continue
         rows = [_split_line(line, sep) for line in lines]
         found = _find_data(rows, decimal)
         if found and (best is None or found[1] > best[0]):
@@ -771,8 +799,10 @@ def _text_layout(path, lines):
     if best is None:
         if not any(line.strip() for line in lines):
             raise RecordError("has no text; expected a header and rows of numbers", file=path)
+        where = (f"the first {len(lines)} lines" if len(lines) == _HEAD_LINES
+                 else f"its {len(lines)} line{'s' if len(lines) > 1 else ''}")
         raise RecordError(
-            f"no data rows (lines of two or more numbers) in the first {len(lines)} lines; "
+            f"no data rows (lines of two or more numbers) in {where}; "
             "expected a header line followed by rows of numbers", file=path)
     _, sep, decimal, start, rows = best
     return sep, decimal, start, rows
@@ -810,46 +840,64 @@ def _read_text(path, head, choose):
     options = dict(
         sep=r"\s+" if sep == " " else sep, decimal=decimal, header=None, skiprows=start,
         engine="c", encoding=encoding, encoding_errors="replace", skip_blank_lines=False,
-        on_bad_lines="warn", quotechar='"',
+        quotechar='"',
     )
+    notes = [encoding_note] if encoding_note else []
+    wide = [start + 1 + k for k, r in enumerate(rows[start:]) if len(r) > n_fields]
+    if wide:
+        notes.append(f"{_line_list(wide)}: more fields than the {n_fields} of the first data "
+                     "row; the extra fields are ignored")
+    if all_numeric:
+        try:
+            frame = _parse(path, options, sep, decimal, start, retry_long_lines=True)
+        except _LongLine as long_line:
+            notes.append(f"line {long_line.line} (and maybe more): more fields than the "
+                         f"{n_fields} of the first data row; the extra fields are ignored")
+            all_numeric = False
     if not all_numeric:
-        options["usecols"] = used
-    try:
-        with warnings.catch_warnings(record=True) as caught:
-            warnings.simplefilter("always")
-            frame = pd.read_csv(path, **options)
-    except (pd.errors.ParserError, pd.errors.EmptyDataError, ValueError, UnicodeError,
-            OverflowError, MemoryError) as exc:
-        raise RecordError(f"cannot be parsed as {_layout_words(sep, decimal)} text: "
-                          f"{str(exc).strip()}", file=path, row=start + 1) from None
-    except OSError as exc:
-        raise RecordError(f"cannot be read ({exc.strerror or exc})", file=path) from None
-    skipped = sorted(int(m) for w in caught for m in _SKIPPED_LINE.findall(str(w.message)))
+        frame = _parse(path, dict(options, usecols=used), sep, decimal, start)
     values = {}
     for i in used:
         if i not in frame.columns:
             raise RecordError("no data in this column", file=path, column=columns[i].header)
-        values[i] = _series_values(frame[i], decimal, pd)
+        values[i] = _series_values(frame[i], decimal, pd, shared=frame.shape[1] > len(used))
     n_rows = len(frame)
     del frame
-    notes = [encoding_note] if encoding_note else []
-    if start > 0:
-        layout = _layout_words(sep, decimal)
-        notes.append(f"{layout}; data from line {start + 1}")
-    if skipped:
-        notes.append(f"{len(skipped)} line{'s' if len(skipped) > 1 else ''} with more fields "
-                     f"than the data rows skipped ({_line_list(skipped)})")
-    skipped_arr = np.asarray(skipped, dtype=np.int64)
 
     def line_numbers(idx):
-        # 1-based file line of data row idx, counting the lines pandas skipped
-        rank = start + 1 + np.asarray(idx, dtype=np.int64)
-        if skipped_arr.size:
-            rank = rank + np.searchsorted(skipped_arr - np.arange(skipped_arr.size), rank,
-                                          side="right")
-        return rank
+        # 1-based file line of data row idx (blank lines are kept as rows)
+        return start + 1 + np.asarray(idx, dtype=np.int64)
 
-    return columns, choice, values, _Rows(n_rows, len(skipped), line_numbers, "line"), notes
+    return columns, choice, values, _Rows(n_rows, line_numbers, "line"), notes
+
+
+class _LongLine(Exception):
+    """A data line with more fields than the first one (whole-file parse only)."""
+
+    def __init__(self, line):
+        super().__init__(line)
+        self.line = line
+
+
+def _parse(path, options, sep, decimal, start, retry_long_lines=False):
+    """One call of ``pandas.read_csv``; its errors become RecordError."""
+    import pandas as pd
+
+    try:
+        with warnings.catch_warnings():
+            warnings.simplefilter("ignore")  # mixed-type chunks are handled after parsing
+            return pd.read_csv(path, **options)
+    except pd.errors.ParserError as exc:
+        m = _LONG_LINE.search(str(exc))
+        if retry_long_lines and m:
+            raise _LongLine(int(m.group(1))) from None
+        problem = str(exc).strip()
+    except (pd.errors.EmptyDataError, ValueError, UnicodeError, OverflowError, MemoryError) as exc:
+        problem = str(exc).strip() or type(exc).__name__
+    except OSError as exc:
+        raise RecordError(f"cannot be read ({exc.strerror or exc})", file=path) from None
+    raise RecordError(f"cannot be parsed as {_layout_words(sep, decimal)} text: {problem}",
+                      file=path, row=start + 1)
 
 
 def _layout_words(sep, decimal):
@@ -857,8 +905,10 @@ def _layout_words(sep, decimal):
     return f"{name}-separated, decimal {'comma' if decimal == ',' else 'point'}"
 
 
-def _series_values(series, decimal, pd):
+def _series_values(series, decimal, pd, shared):
     if pd.api.types.is_numeric_dtype(series.dtype) and not pd.api.types.is_bool_dtype(series.dtype):
+        if series.dtype == np.float64:
+            return _Values(series.to_numpy(), None, shared=shared)  # a view into the frame
         return _Values(series.to_numpy(dtype=np.float64, na_value=np.nan), None)
     present = series.notna().to_numpy()
     as_text = series.astype(str)
@@ -878,21 +928,26 @@ def _read_xlsx(path, choose):
     import openpyxl
 
     try:
-        # read-only, cached values only, external links not loaded: nothing in
-        # the workbook is evaluated or followed [2]
-        book = openpyxl.load_workbook(path, read_only=True, data_only=True, keep_links=False)
-    except Exception as exc:  # openpyxl raises many types for a bad container
-        raise RecordError(f"not a readable XLSX workbook ({type(exc).__name__}: {exc})",
-                          file=path) from None
-    try:
-        return _read_sheet(path, book, choose)
-    except RecordError:
-        raise
-    except Exception as exc:  # a damaged sheet part deep inside the ZIP
-        raise RecordError(f"the first sheet cannot be read ({type(exc).__name__}: {exc})",
-                          file=path) from None
-    finally:
-        book.close()
+        handle = open(path, "rb")  # a file object: openpyxl then does not judge by the extension
+    except OSError as exc:
+        raise RecordError(f"cannot be read ({exc.strerror or exc})", file=path) from None
+    with handle:
+        try:
+            # read-only, cached values only, external links not loaded:
+            # nothing in the workbook is evaluated or followed [2]
+            book = openpyxl.load_workbook(handle, read_only=True, data_only=True, keep_links=False)
+        except Exception as exc:  # openpyxl raises many types for a bad container
+            raise RecordError(f"not a readable XLSX workbook ({type(exc).__name__}: {exc})",
+                              file=path) from None
+        try:
+            return _read_sheet(path, book, choose)
+        except RecordError:
+            raise
+        except Exception as exc:  # a damaged sheet part deep inside the ZIP
+            raise RecordError(f"the first sheet cannot be read ({type(exc).__name__}: {exc})",
+                              file=path) from None
+        finally:
+            book.close()
 
 
 def _read_sheet(path, book, choose):
@@ -919,7 +974,7 @@ def _read_sheet(path, book, choose):
     cells = {i: [] for i in used}
     texts = {i: [] for i in used}
     n_rows = 0
-    for row in _chain(head[start:], rows):
+    for row in chain(head[start:], rows):
         for i in used:
             value, is_text = _cell_value(row[i] if i < len(row) else None, decimal)
             cells[i].append(value)
@@ -934,21 +989,18 @@ def _read_sheet(path, book, choose):
             text[[k for k, _ in texts[i]]] = True
         values[i] = _Values(np.array(cells[i], dtype=np.float64), text,
                             texts[i][0][1] if texts[i] else None)
-    notes = [f"sheet '{sheet.title}'; data from row {start + 1}"]
-    rows_info = _Rows(n_rows, 0, lambda idx: start + 1 + np.asarray(idx, dtype=np.int64), "row")
+    notes = []
+    rows_info = _Rows(n_rows, lambda idx: start + 1 + np.asarray(idx, dtype=np.int64), "row")
     return columns, choice, values, rows_info, notes
-
-
-def _chain(first, rest):
-    yield from first
-    yield from rest
 
 
 def _cell_value(cell, decimal):
     """(float, is_text) of a worksheet cell; NaN when empty or not a number."""
     kind = _token_class(cell, decimal)
     if kind == _NUM:
-        return (float(cell.strip().replace(",", ".")) if isinstance(cell, str) else float(cell)), False
+        if isinstance(cell, str):
+            return float(cell.strip().replace(",", ".")), False
+        return float(cell), False
     return math.nan, kind == _TEXT
 
 
@@ -959,7 +1011,6 @@ def _cell_value(cell, decimal):
 @dataclass
 class _Rows:
     count: int  # data rows parsed
-    skipped: int  # lines the parser skipped (too many fields)
     line_numbers: object  # callable: row indices -> 1-based line (or sheet row) numbers
     word: str  # "line" for text, "row" for a sheet
 
@@ -995,23 +1046,71 @@ def _first_text(used):
     return None, None
 
 
-def _converted(raw, good, all_good, factor):
-    """A new float64 array of the good values in the internal unit."""
-    out = raw[: good.size].copy() if all_good else raw[: good.size][good]
-    if factor != 1.0:
-        out *= factor
+def _finite(raw, n):
+    """None when the first n values are all finite, else the mask of finite ones.
+
+    One sum answers the common all-finite case: NaN and inf propagate through
+    it (an overflow to inf only sends a record down the slower, exact path).
+    """
+    head = raw[:n]
+    with np.errstate(all="ignore"):
+        if math.isfinite(float(np.sum(head))):
+            return None
+    return np.isfinite(head)
+
+
+def _both(a, b):
+    if a is None:
+        return b
+    return a if b is None else a & b
+
+
+def _converted(column, n, good, factor):
+    """The good values in the internal unit, as a read-only float64 array.
+
+    A view of the parsed data is kept as it is when it holds nothing but the
+    channels used (no copy, no extra memory); otherwise a new array is made.
+    """
+    raw = column.values[:n]
+    if good is None:
+        out = raw * factor if factor != 1.0 else (raw.copy() if column.shared else raw)
+    else:
+        out = raw[good]
+        if factor != 1.0:
+            out *= factor
+    out.flags.writeable = False
     return out
 
 
 def _time_notes(time_s):
-    steps = np.diff(time_s)
+    later, earlier = time_s[1:], time_s[:-1]
+    if np.all(later > earlier):
+        return []
     notes = []
-    repeated = int(np.count_nonzero(steps == 0))
-    backwards = int(np.count_nonzero(steps < 0))
+    repeated = int(np.count_nonzero(later == earlier))
+    backwards = int(np.count_nonzero(later < earlier))
     if repeated:
         notes.append(f"{repeated} repeated time stamps (samples are used in file order)")
     if backwards:
         notes.append(f"time goes backwards {backwards} times (samples are used in file order)")
+    return notes
+
+
+def _bad_row_notes(good, used, n, rows):
+    text_rows = np.zeros(n, dtype=bool)
+    for _, v in used:
+        if v.text is not None:
+            text_rows |= v.text[:n]
+    text_rows &= ~good
+    notes = []
+    for mask, what in ((text_rows, "with text in numeric columns"),
+                       (~good & ~text_rows, "with empty or NaN cells")):
+        idx = np.flatnonzero(mask)
+        if idx.size:
+            shown = rows.line_numbers(idx[:_LINES_LISTED])
+            listed = _line_list(shown, idx.size - shown.size, rows.word)
+            rows_word = "rows" if idx.size > 1 else "row"
+            notes.append(f"{idx.size} {rows_word} {what} skipped ({listed})")
     return notes
 
 
@@ -1022,26 +1121,28 @@ def _finish(path, digest, columns, choice, values, rows, notes):
     time = values[choice.time.column.index] if choice.time is not None else None
     n = _trim_empty_tail([load, disp] + ([time] if time else []), rows.count)
 
-    good = np.isfinite(load.values[:n]) & np.isfinite(disp.values[:n])
+    good = _both(_finite(load.values, n), _finite(disp.values, n))
     if time is not None:
-        time_ok = np.isfinite(time.values[:n])
-        if np.count_nonzero(good & ~time_ok) > 0.5 * np.count_nonzero(good):
-            notes.append(f"time column '{choice.time.column.header}' is mostly empty or not "
-                         "numeric; time not used")
-            time = None
-        else:
-            good &= time_ok
+        time_ok = _finite(time.values, n)
+        if time_ok is not None:
+            n_ld = n if good is None else int(np.count_nonzero(good))
+            n_lost = n_ld - int(np.count_nonzero(time_ok if good is None else time_ok & good))
+            if n_lost > 0.5 * n_ld:
+                notes.append(f"time column '{choice.time.column.header}' is mostly empty or not "
+                             "numeric; time not used")
+                time = None
+            else:
+                good = _both(good, time_ok)
     used = [(choice.load, load), (choice.disp, disp)] + ([(choice.time, time)] if time else [])
 
-    n_good = int(np.count_nonzero(good))
-    n_bad = n - n_good + rows.skipped
-    total = n + rows.skipped
-    if n_bad > _MAX_BAD_FRACTION * total:
+    n_good = n if good is None else int(np.count_nonzero(good))
+    n_bad = n - n_good
+    if n_bad > _MAX_BAD_FRACTION * n:
         bad_idx = np.flatnonzero(~good)
         shown = rows.line_numbers(bad_idx[:_LINES_LISTED])
         column, value = _first_text(used)
         raise RecordError(
-            f"{n_bad} of {total} data rows have empty or non-numeric cells in the channels used "
+            f"{n_bad} of {n} data rows have empty or non-numeric cells in the channels used "
             f"(first at {_line_list(shown, bad_idx.size - shown.size, rows.word)}); more than "
             f"half, so the record is refused; check the channels chosen (load "
             f"'{choice.load.column.header}', displacement '{choice.disp.column.header}') and "
@@ -1049,29 +1150,17 @@ def _finish(path, digest, columns, choice, values, rows, notes):
     if n_good < _MIN_VALID_ROWS:
         raise RecordError(f"only {n_good} valid data rows; at least {_MIN_VALID_ROWS} are needed",
                           file=path)
+    if good is not None:
+        notes += _bad_row_notes(good, used, n, rows)
 
-    text_rows = np.zeros(n, dtype=bool)
-    for _, v in used:
-        if v.text is not None:
-            text_rows |= v.text[:n]
-    text_rows &= ~good
-    for mask, what in ((text_rows, "with text in numeric columns"),
-                       (~good & ~text_rows, "with empty or NaN cells")):
-        idx = np.flatnonzero(mask)
-        if idx.size:
-            shown = rows.line_numbers(idx[:_LINES_LISTED])
-            listed = _line_list(shown, idx.size - shown.size, rows.word)
-            notes.append(f"{idx.size} {'rows' if idx.size > 1 else 'row'} {what} skipped ({listed})")
-
-    all_good = n_good == n
     time_s = None
     if time is not None:
-        time_s = _converted(time.values, good, all_good, choice.time.factor)
+        time_s = _converted(time, n, good, choice.time.factor)
         notes += _time_notes(time_s)
     return Record(
         path=path,
-        load_kN=_converted(load.values, good, all_good, choice.load.factor),
-        disp_mm=_converted(disp.values, good, all_good, choice.disp.factor),
+        load_kN=_converted(load, n, good, choice.load.factor),
+        disp_mm=_converted(disp, n, good, choice.disp.factor),
         time_s=time_s,
         load_header=choice.load.column.header,
         disp_header=choice.disp.column.header,

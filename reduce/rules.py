@@ -5,18 +5,22 @@ this module only applies them.  Each check returns a :class:`Check` with its
 value, its limit in words, ``passed`` (``True``, ``False`` or ``None`` when
 the data to assess it are missing) and the clause it comes from.
 
-K_Q qualifies as K_Ic only when no check failed and every core check of the
-rule set passed (was assessed and met).
+K_Q qualifies as K_Ic only when every core check of the rule set passed (was
+assessed and met) and no other check failed, except the rule set's advisory
+checks (``advisory_checks`` in ``limits.toml``): these are reported but do
+not decide validity.
 """
 
 from __future__ import annotations
 
+import math
 import tomllib
 from dataclasses import dataclass, asdict
 from functools import lru_cache
 from pathlib import Path
 
 from reduce.errors import RulesError
+from specimens import crack_front as cf
 
 RULE_SETS = ("e399", "iso12737")
 
@@ -120,16 +124,60 @@ def core_checks(rules: dict, *, a_over_W, P_max_over_P_Q, K_Q, yield_MPa, B, a, 
     return out
 
 
-def crack_front_check(rules: dict, readings: tuple[float, ...]) -> Check:
-    """Spread of the interior crack-length readings against their mean."""
+def crack_front_check(rules: dict, readings: tuple[float, ...], B: float | None = None,
+                      W: float | None = None) -> Check:
+    """Crack-front straightness by the scheme the number of readings implies.
+
+    Parameters
+    ----------
+    rules : dict
+        The rule set (:func:`rule_set`); its ``crack_front`` table holds both
+        tolerances.
+    readings : tuple of float
+        Crack lengths across the front, mm: 3 (B/4, B/2, 3B/4) or 9 (surface
+        to surface).
+    B, W : float, optional
+        Thickness and width, mm; needed for nine readings.
+
+    Returns
+    -------
+    Check
+        Three readings: value (max − min)/a, dimensionless, against the rule
+        set's ``max_spread``.  Nine readings: value max |a_i − a| of the
+        seven inner readings, mm, against ``nine_point_factor`` (b0 B)^½
+        (rule ``ligament``, b0 = W − a) or ``nine_point_factor`` a (rule
+        ``fraction``).  The note names the scheme.  Any other count: not
+        assessed.
+
+    References
+    ----------
+    ASTM E399 clause 9.1.4 (three-point); ASTM E1820 crack-front
+    straightness (nine-point).  From memory, see ``limits.toml``.
+    """
     r = rules["crack_front"]
+    if len(readings) == 9 and B is not None and W is not None:
+        return _nine_point_check(r, readings, B, W)
     lim = r["max_spread"]
-    if len(readings) < 3:
-        return Check("crack_front", None, None, f"(max - min)/a <= {lim:.2f}", r["clause"],
-                     "fewer than three interior readings")
-    mean = sum(readings) / len(readings)
-    spread = (max(readings) - min(readings)) / mean
-    return Check("crack_front", spread <= lim, spread, f"(max - min)/a <= {lim:.2f}", r["clause"])
+    limit = f"(max - min)/a <= {lim:.2f}"
+    if len(readings) != 3:
+        return Check("crack_front", None, None, limit, r["clause"],
+                     f"{len(readings)} readings: expected 3 ({cf.THREE_POINT}) or 9 "
+                     f"({cf.NINE_POINT}, with B and W)")
+    d = cf.three_point_spread(readings, lim, r["clause"])
+    return Check("crack_front", d.within, d.measure, limit, r["clause"], f"scheme: {d.scheme}")
+
+
+def _nine_point_check(r: dict, readings, B: float, W: float) -> Check:
+    rule, factor = r["nine_point_rule"], r["nine_point_factor"]
+    d = cf.nine_point_deviation(readings, B, W, rule)
+    if rule == "ligament":
+        tol = factor * math.sqrt((W - d.average) * B)
+        limit = f"max |a_i - a| of the 7 inner readings <= {factor:g} ((W - a) B)^0.5 = {tol:.3f} mm"
+    else:
+        tol = factor * d.average
+        limit = f"max |a_i - a| of the 7 inner readings <= {factor:g} a = {tol:.3f} mm"
+    return Check("crack_front", d.measure <= tol, d.measure, limit, r["nine_point_clause"],
+                 f"scheme: {d.scheme}")
 
 
 def surface_crack_check(rules: dict, a: float, surface: tuple[float, ...]) -> Check:
@@ -168,9 +216,77 @@ def loading_rate_check(rules: dict, K_rate: float | None) -> Check:
     return Check("loading_rate", r["min"] <= K_rate <= r["max"], K_rate, limit, r["clause"])
 
 
+def compliance_crack_length_check(rules: dict, a: float, W: float, a_compliance: float | None,
+                                  *, min_difference_over_W: float | None = None,
+                                  note: str = "") -> Check:
+    """The crack length the initial slope implies against the measured one.
+
+    Parameters
+    ----------
+    rules : dict
+        The rule set; its ``compliance_crack_length`` table holds the tolerance.
+    a, W : float
+        Measured (crack-front average) crack length and width, mm.
+    a_compliance : float or None
+        Crack length from the elastic compliance, mm; ``None`` when it could
+        not be found.
+    min_difference_over_W : float, optional
+        When ``a_compliance`` is ``None`` because the compliance implies an
+        a/W outside the relation's range: the least |a_compliance − a|/W
+        this means.  The check fails if that already exceeds the tolerance.
+    note : str
+        Why it was not assessed, or what lies behind a failure without a value.
+
+    Returns
+    -------
+    Check
+        Value (a_compliance − a)/W, dimensionless, signed; passes when its
+        magnitude does not exceed ``max_difference_over_W``.  An advisory
+        check of both rule sets (see ``limits.toml``).
+
+    References
+    ----------
+    ASTM E1820 (compliance-predicted against measured initial crack size),
+    from memory; see ``limits.toml`` for the standing of the tolerance.
+
+    Examples
+    --------
+    >>> c = compliance_crack_length_check(rule_set("e399"), 25.0, 50.0, 27.5)
+    >>> round(c.value, 3), c.passed
+    (0.05, False)
+    """
+    r = rules["compliance_crack_length"]
+    tol = r["max_difference_over_W"]
+    limit = f"|a_compliance - a|/W <= {tol:.3f}"
+    if a_compliance is not None:
+        value = (a_compliance - a) / W
+        return Check("compliance_crack_length", abs(value) <= tol, value, limit, r["clause"],
+                     f"a_compliance = {a_compliance:.3f} mm, a = {a:.3f} mm")
+    if min_difference_over_W is not None and min_difference_over_W > tol:
+        return Check("compliance_crack_length", False, None, limit, r["clause"], note)
+    return Check("compliance_crack_length", None, None, limit, r["clause"], note)
+
+
+def calibration_check(rules: dict, designation: str, caveat: str, reference: str) -> Check:
+    """Whether the geometry's K calibration stands without a caveat.
+
+    Fails when the definition carries a caveat, so that such a K_Q is never
+    reported as K_Ic (a core check of both rule sets).
+
+    >>> calibration_check(rule_set("e399"), "C(T)", "", "ASTM E399 Annex A4").passed
+    True
+    """
+    r = rules["calibration_confirmed"]
+    return Check("calibration_confirmed", not caveat, None,
+                 f"the {designation} K calibration is confirmed against the standard",
+                 f"{r['clause']}; calibration: {reference}", caveat)
+
+
 def qualifies(rules: dict, checks: list[Check]) -> bool:
-    """K_Q is K_Ic only if no check failed and every core check passed."""
+    """K_Q is K_Ic only if every core check passed and no other check but an
+    advisory one failed."""
     by_name = {c.name: c for c in checks}
-    if any(c.passed is False for c in checks):
+    advisory = set(rules.get("advisory_checks", ()))
+    if any(c.passed is False and c.name not in advisory for c in checks):
         return False
     return all(by_name.get(n) is not None and by_name[n].passed is True for n in rules["core_checks"])

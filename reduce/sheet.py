@@ -5,6 +5,12 @@ Column names are the standard's symbol and a unit suffix, e.g. ``W_mm`` or
 internal units on the way in (see :mod:`reduce.units`).  Columns the sheet
 has and cracktip does not know are kept as metadata.
 
+Crack-length readings: ``a1`` … ``a3`` (ASTM E399 three-point) or ``a1`` …
+``a9`` (ASTM E1820 nine-point), no gaps; the count chooses the scheme.
+``displacement_type`` (``cmod``, ``load_line`` or ``front_face``; spaces,
+hyphens and case ignored) must be one the geometry allows; empty means the
+geometry's default.
+
 Every row is checked on its own: a row with a missing or impossible value
 becomes a :class:`BadRow` carrying a :class:`~reduce.errors.SheetError`
 that names the sheet, the row (as a spreadsheet counts it: the header is
@@ -210,11 +216,11 @@ def _row_to_specimen(values: dict, columns: dict, sheet: str, row: int) -> Speci
     for req in REQUIRED:
         if req not in q and req not in text:
             raise SheetError("a required value is missing", file=sheet, row=row, column=col(req))
-    for symbol in ("B", "W", "BN", "S", "yield", "E", "tensile", "a1", "a2", "a3"):
+    for symbol in ("B", "W", "BN", "S", "yield", "E", "tensile", *(f"a{i}" for i in range(1, 10))):
         if symbol in q and q[symbol] <= 0:
             raise SheetError("must be greater than zero", file=sheet, row=row, column=col(symbol),
                              value=values[col(symbol)])
-    readings = tuple(q[f"a{i}"] for i in range(1, 10) if f"a{i}" in q)
+    readings = _readings(q, values, col, sheet, row)
     for i, a in enumerate(readings, start=1):
         if a >= q["W"]:
             raise SheetError(f"crack length must be less than W = {q['W']:.3f} mm", file=sheet, row=row,
@@ -236,6 +242,7 @@ def _row_to_specimen(values: dict, columns: dict, sheet: str, row: int) -> Speci
         if need not in q:
             raise SheetError(f"{geo.designation} needs this dimension", file=sheet, row=row,
                              column=f"{need}_mm")
+    kind = _displacement_type(text.get("displacement_type"), geo, sheet, row)
     dims = {k: q[k] for k in ("X", "r1", "r2") if k in q}
     surface = tuple(q[k] for k in ("as1", "as2") if k in q)
     return Specimen(
@@ -244,12 +251,43 @@ def _row_to_specimen(values: dict, columns: dict, sheet: str, row: int) -> Speci
         surface=surface, precrack_Kmax=q.get("precrack_Kmax"), heat=text.get("heat"),
         temperature_C=q.get("temperature"), orientation=text.get("orientation"),
         tensile_MPa=q.get("tensile"), poisson=q.get("poisson"),
-        displacement_type=text.get("displacement_type"), dims=dims, record=text["record"],
+        displacement_type=kind, dims=dims, record=text["record"],
         load_column=text.get("load_column"), displacement_column=text.get("displacement_column"),
         load_unit=text.get("load_unit"), displacement_unit=text.get("displacement_unit"),
         metadata={**meta, **({"material": text["material"]} if "material" in text else {})},
         sheet=sheet, row=row,
     )
+
+
+def _readings(q: dict, values: dict, col, sheet: str, row: int) -> tuple[float, ...]:
+    """a1 … an in order; n must be 3 or 9 and the run must have no gap."""
+    given = [i for i in range(1, 10) if f"a{i}" in q]
+    gap = next((i for i in range(1, given[-1]) if i not in given), None)
+    if gap is not None:
+        name = col(f"a{gap}")
+        raise SheetError(f"crack-length reading a{gap} is empty but a{given[-1]} is given; "
+                         "readings must run from a1 without a gap", file=sheet, row=row,
+                         column=name if name != f"a{gap}" else f"a{gap}_mm")
+    n = len(given)
+    if n not in (3, 9):
+        name = col(f"a{n}")
+        raise SheetError(f"{n} crack-length readings (a1 to a{n}); give 3 (a1 to a3, ASTM E399 "
+                         "three-point) or 9 (a1 to a9, ASTM E1820 nine-point)", file=sheet, row=row,
+                         column=name, value=values[name])
+    return tuple(q[f"a{i}"] for i in given)
+
+
+def _displacement_type(raw: str | None, geo, sheet: str, row: int) -> str | None:
+    """The sheet's displacement type in canonical form, checked against the geometry."""
+    if raw is None:
+        return None
+    kind = "_".join(raw.lower().replace("-", " ").split())
+    if kind not in geo.displacement_types:
+        allowed = ", ".join(geo.displacement_types)
+        raise SheetError(f"{geo.designation} allows displacement_type {allowed} "
+                         f"(empty: {geo.displacement_types[0]})", file=sheet, row=row,
+                         column="displacement_type", value=raw)
+    return kind
 
 
 _SAFE = re.compile(r"[^A-Za-z0-9._-]+")

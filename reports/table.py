@@ -28,6 +28,10 @@ def _f(x, nd):
 def summary_table(results, rules_title: str, width: int = 100) -> str:
     """A plain-text table of results with the reasons and errors beneath.
 
+    Beneath the table: per specimen the error, or why K_Q is not K_Ic, then
+    the caveats of its geometry definition and its warnings (failed advisory
+    checks, which do not decide validity).
+
     Parameters
     ----------
     results : list of Result
@@ -49,6 +53,9 @@ def summary_table(results, rules_title: str, width: int = 100) -> str:
             notes.append((r.specimen, "could not be reduced: " + r.error))
         elif not r.valid:
             notes.append((r.specimen, "not K_Ic: " + "; ".join(r.reasons)))
+        if not r.error:
+            notes.extend((r.specimen, "caveat: " + c) for c in r.caveats)
+            notes.extend((r.specimen, "warning: " + w) for w in r.warnings)
     if notes:
         lines.append("")
         for spec, text in notes:
@@ -58,7 +65,8 @@ def summary_table(results, rules_title: str, width: int = 100) -> str:
     n_ok = sum(1 for r in results if not r.error)
     n_valid = sum(1 for r in results if r.valid)
     lines.append("")
+    n_warn = sum(1 for r in results if not r.error and (r.caveats or r.warnings))
     lines.append(f"{len(results)} specimens: {n_ok} reduced, {len(results) - n_ok} failed, "
-                 f"{n_valid} valid K_Ic.")
+                 f"{n_valid} valid K_Ic" + (f", {n_warn} with warnings or caveats." if n_warn else "."))
     lines.extend(textwrap.wrap("CAUTION: " + CAUTION, width))
     return "\n".join(lines)

@@ -26,6 +26,15 @@ RESULT_COLUMNS = [
     ("P_max/P_Q", "P_max_over_P_Q", "0.000"), ("Curve type", "curve_type", None),
     ("K_Q (MPa·m^½)", "K_Q_MPa_sqrt_m", "0.00"), ("K_Q (ksi·in^½)", "K_Q_ksi_sqrt_in", "0.00"),
     ("Valid K_Ic", "valid", None), ("K_Ic (MPa·m^½)", "K_Ic_MPa_sqrt_m", "0.00"),
+    # elastic-plastic group (reduce/elastic_plastic.py)
+    ("EP point", ("elastic_plastic", "point"), None),
+    ("J (kJ/m²)", ("elastic_plastic", "J_kJ_per_m2"), "0.0"),
+    ("J qualifies (E1820 size)", ("elastic_plastic", "J_valid"), None),
+    ("K_J (MPa·m^½)", ("elastic_plastic", "K_J_MPa_sqrt_m"), "0.0"),
+    ("K_J qualifies (E1921 size)", ("elastic_plastic", "K_J_valid"), None),
+    ("CTOD (mm)", ("elastic_plastic", "CTOD_mm"), "0.0000"),
+    ("CTOD qualifies", ("elastic_plastic", "CTOD_valid"), None),
+    ("EP valid", ("elastic_plastic", "valid"), None),
     ("Reasons", "reasons", None), ("Record SHA-256", "record_sha256", None), ("Error", "error", None),
 ]
 
@@ -86,7 +95,8 @@ def write_workbook(path, rows) -> None:
     _header(wc, ["Specimen", "Check", "Result", "Value", "Limit", "Clause", "Note"],
             {5: 40, 6: 60, 7: 30})
     for d in dicts:
-        for c in d.get("checks") or []:
+        # K_Ic checks, then the elastic-plastic ones (reduce/elastic_plastic.py)
+        for c in (d.get("checks") or []) + ((d.get("elastic_plastic") or {}).get("checks") or []):
             verdict = {True: "pass", False: "fail", None: "not assessed"}[c["passed"]]
             wc.append([d["specimen"], c["name"], verdict, c["value"], c["limit"], c["clause"], c.get("note", "")])
     for row in wc.iter_rows(min_row=2, min_col=4, max_col=4):
