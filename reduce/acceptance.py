@@ -151,7 +151,7 @@ class HeatVerdict:
                 "other_specimens": [s.to_dict() for s in self.others]}
 
 
-def tested_specimens(rows) -> list:
+def acceptance_inputs(rows) -> list:
     """Acceptance inputs from :func:`reduce.pipeline.reduce_sheet` output.
 
     Parameters

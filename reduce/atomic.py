@@ -19,6 +19,10 @@ def atomic_path(target):
     target.parent.mkdir(parents=True, exist_ok=True)
     fd, tmp = tempfile.mkstemp(prefix=f".{target.name}.", suffix=".part", dir=target.parent)
     os.close(fd)
+    # mkstemp makes the file private (0600); give it the mode a plain open() would
+    umask = os.umask(0)
+    os.umask(umask)
+    os.chmod(tmp, 0o666 & ~umask)
     try:
         yield Path(tmp)
         os.replace(tmp, target)

@@ -66,6 +66,13 @@ def add_rules_option(parser) -> None:
 #: only when a command runs.
 COMMANDS = [
     ("reduce.cli", "add_reduce_command"),
+    ("reduce.certify", "add_certify_command"),
+    ("reduce.certify", "add_verify_command"),
+    ("reduce.certify", "add_plot_command"),
+    ("reduce.qa", "add_accept_command"),
+    ("reduce.qa", "add_approve_command"),
+    ("reduce.qa", "add_history_command"),
+    ("reduce.qa", "add_trend_command"),
 ]
 
 

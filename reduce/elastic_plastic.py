@@ -473,8 +473,9 @@ def elastic_plastic_result(load_kN, disp_mm, specimen: Specimen, sec, a_mm: floa
         The keys of :data:`_KEYS`, ``checks``, ``valid`` (every check
         assessed and passed), ``J_valid``, ``K_J_valid``, ``CTOD_valid``,
         ``notes`` (what was found) and ``assumptions`` (what was assumed
-        or is uncertain; a certificate prints them).  When nothing can be determined the numbers are ``None``
-        and the notes say why; this function does not raise for such data.
+        or is uncertain; a certificate prints them).  When nothing can be
+        determined the numbers are ``None`` and the notes say why; this
+        function does not raise for such data.
 
     References
     ----------
@@ -484,7 +485,7 @@ def elastic_plastic_result(load_kN, disp_mm, specimen: Specimen, sec, a_mm: floa
         return _compute(np.asarray(load_kN, dtype=float), np.asarray(disp_mm, dtype=float),
                         specimen, sec, a_mm, K_per_kN)
     except ElasticPlasticError as exc:
-        return not_assessed(f"no elastic-plastic result: {exc}")
+        return not_assessed(str(exc))
 
 
 def _compute(load, disp, specimen, sec, a, K_per_kN) -> dict:
@@ -567,7 +568,8 @@ def _compute(load, disp, specimen, sec, a, K_per_kN) -> dict:
     q = L["qualifies"]
     assumptions.append(ASSUMPTION_NOTE)
     return {
-        "point": poi.kind, "point_note": point_note, "P_kN": poi.P_kN, "v_mm": poi.v_mm, "displacement_type": dtype,
+        "point": poi.kind, "point_note": point_note, "P_kN": poi.P_kN, "v_mm": poi.v_mm,
+        "displacement_type": dtype,
         "work_total_J": A, "work_plastic_J": A_pl, "eta": eta, "eta_source": eta_src,
         "J_el_kJ_per_m2": J_el, "J_pl_kJ_per_m2": J_pl, "J_kJ_per_m2": J, "K_J_MPa_sqrt_m": K_J,
         "V_p_mm": V_p, "r_p": r_p, "r_p_source": factors.r_p_source if r_p else None, "z_mm": z,

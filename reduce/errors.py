@@ -27,7 +27,17 @@ def _where(file=None, row=None, column=None, value=None) -> str:
     return ", ".join(parts)
 
 
-class SheetError(CracktipError, ValueError):
+class _LocatedError(CracktipError, ValueError):
+    """An error at a place in a file: the message starts with where it is."""
+
+    def __init__(self, problem, file=None, row=None, column=None, value=None):
+        self.problem = problem
+        self.file, self.row, self.column, self.value = file, row, column, value
+        where = _where(file, row, column, value)
+        super().__init__(f"{where}: {problem}" if where else problem)
+
+
+class SheetError(_LocatedError):
     """A test-sheet row (or the sheet itself) is missing or has impossible data.
 
     Parameters
@@ -39,14 +49,9 @@ class SheetError(CracktipError, ValueError):
         it in a spreadsheet (header = row 1), the column name and the value.
     """
 
-    def __init__(self, problem, file=None, row=None, column=None, value=None):
-        self.problem = problem
-        self.file, self.row, self.column, self.value = file, row, column, value
-        where = _where(file, row, column, value)
-        super().__init__(f"{where}: {problem}" if where else problem)
 
 
-class RecordError(CracktipError, ValueError):
+class RecordError(_LocatedError):
     """A raw load-displacement record cannot be read or makes no sense.
 
     Parameters
@@ -58,11 +63,6 @@ class RecordError(CracktipError, ValueError):
         column header and the offending value, as far as known.
     """
 
-    def __init__(self, problem, file=None, row=None, column=None, value=None):
-        self.problem = problem
-        self.file, self.row, self.column, self.value = file, row, column, value
-        where = _where(file, row, column, value)
-        super().__init__(f"{where}: {problem}" if where else problem)
 
 
 class ReductionError(CracktipError, ValueError):

@@ -352,10 +352,16 @@ class Store:
             yield self._run
             db.execute("COMMIT")
         except BaseException:
-            db.execute("ROLLBACK")
+            if db.in_transaction:  # a failed COMMIT may already have rolled back
+                db.execute("ROLLBACK")
             raise
         finally:
             self._run = None
+
+    @property
+    def current_run(self) -> Run | None:
+        """The run of the open transaction, or ``None``."""
+        return self._run
 
     def _writing(self) -> Run:
         if self._run is None:

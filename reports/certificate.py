@@ -180,7 +180,34 @@ def certificate_payload(heat, results, rules: str, sheet_path, sheet_sha256: str
                         number=None, revision=None, supersedes=None, draft=False,
                         approval=None, issue_date=None, lab_name=None,
                         program_version=__version__) -> dict:
-    """The data embedded in the certificate (see the module docstring)."""
+    """The data embedded in the certificate.
+
+    Parameters
+    ----------
+    heat : str
+    results : list of Result
+        Every result of the heat, failed ones included.
+    rules : str
+        The rule set's name.
+    sheet_path, sheet_sha256 : str or Path, str
+        The test sheet and the SHA-256 of its bytes.
+    number, revision, supersedes, draft, approval, issue_date, lab_name
+        What the certificate says about itself.
+
+    Returns
+    -------
+    dict
+        ``format``, ``format_version``, ``program``, ``certificate``,
+        ``rule_set``, ``sheet``, ``records`` (specimen, record path, SHA-256)
+        and ``results`` (:meth:`Result.to_dict` each), JSON-ready.
+
+    Raises
+    ------
+    RulesError
+        For an unknown rule set.
+    ValueError
+        If a result holds NaN or infinity (JSON has no such numbers).
+    """
     from reduce.rules import rule_set
 
     return _plain({
@@ -350,7 +377,7 @@ class _Styles:
         self.para = ParagraphStyle("para", base, spaceAfter=4)
         self.small = ParagraphStyle("small", base, fontSize=7.2, leading=9.6, spaceBefore=1)
         self.cell = ParagraphStyle("cell", base, fontSize=7.2, leading=9.6)
-        self.cell_s = ParagraphStyle("cell_s", self.cell, fontSize=6.6, leading=8.6)
+        self.cell_s = ParagraphStyle("cell_s", self.cell, fontSize=6.6, leading=9.2)
         self.warn = ParagraphStyle("warn", self.small, textColor=HexColor("#7a5a00"))
         self.cell_c = ParagraphStyle("cell_c", self.cell, alignment=1)
         self.cell_r = ParagraphStyle("cell_r", self.cell, alignment=2)
@@ -699,7 +726,7 @@ class _Doc:
     # specimen pages -------------------------------------------------------
     def specimen_page(self, result, record, spec):
         from reportlab.lib.units import mm
-        from reportlab.platypus import Image, Paragraph, Spacer
+        from reportlab.platypus import Image, PageBreak, Paragraph, Spacer
 
         from reports.plots import plot_bytes
 
@@ -713,13 +740,15 @@ class _Doc:
                Paragraph(f"Record <b>{_e(r.record)}</b>, SHA-256 <font name='CT-Mono' size='6.6'>"
                          f"{_e(r.record_sha256)}</font>", st.small)]
         if record is not None:
-            size = (6.7, 3.5)
+            size = (6.7, 4.2)
             w_mm = 168
             png = plot_bytes(r, record.load_kN, record.disp_mm, fmt="png", dpi=220, title="", size_in=size)
             out += [Spacer(1, 1), Image(io.BytesIO(png), width=w_mm * mm, height=w_mm * size[1] / size[0] * mm)]
         out += [self._verdict(r)]
         out += [Paragraph("Construction", st.h3), self._construction(r)]
         out += [Paragraph("Crack-front readings", st.h3), self._front(r)]
+        # the second page of a specimen: its checks and everything else said about it
+        out += [PageBreak(), Paragraph(f"Specimen {_e(r.specimen)} (continued)", st.h2)]
         out += [Paragraph("Validity checks", st.h3), self._checks(r),
                 Paragraph("* core check: K<sub>Q</sub> qualifies as K<sub>Ic</sub> only if every core check is "
                           "assessed and passes and no other check fails. † advisory: shown, does not decide "
@@ -731,7 +760,7 @@ class _Doc:
             out.append(Paragraph("Warning: " + _words(w), st.warn))
         notes = [n for n in [r.curve_note] + list(r.record_notes) if n]
         if notes:
-            out.append(Paragraph("Notes: " + "; ".join(_e(n) for n in notes), st.small))
+            out.append(Paragraph("Notes: " + "; ".join(_words(n) for n in notes), st.small))
         return out
 
     def _elastic_plastic(self, r):
@@ -951,6 +980,13 @@ def build_certificate(path, heat, rows, lab: dict, rules: str, sheet_path, sheet
     ReportError
         If a row failed and ``include_failed`` is false, if the heat has no
         rows, or if an issued certificate has no number.
+
+    References
+    ----------
+    ISO/IEC 17025:2017 clause 7.8.2, what a test report states (laboratory,
+    unique identification on every page, page n of N, the method, the item
+    tested, the results with units, who authorised it), from memory; the
+    layout and wording are cracktip's own.
     """
     from pypdf import PdfReader, PdfWriter
     from reportlab.lib.pagesizes import A4
@@ -984,8 +1020,7 @@ def build_certificate(path, heat, rows, lab: dict, rules: str, sheet_path, sheet
     title = ("DRAFT certificate" if draft else f"Certificate {certificate_number}") + f", heat {heat}"
     doc = BaseDocTemplate(buf, pagesize=A4, leftMargin=18 * mm, rightMargin=18 * mm, topMargin=25 * mm,
                           bottomMargin=20 * mm, title=title, author=lab["name"],
-                          subject="Fracture-toughness test certificate", creator=f"cracktip {program_version}",
-                          invariant=1)
+                          subject="Fracture-toughness test certificate", creator=f"cracktip {program_version}")
     frame = Frame(doc.leftMargin, doc.bottomMargin, doc.width, doc.height, id="body",
                   leftPadding=0, rightPadding=0, topPadding=0, bottomPadding=0)
     doc.addPageTemplates([PageTemplate(id="page", frames=[frame], onPage=_page_decor(opts, lab, heat))])

@@ -93,10 +93,13 @@ def _sentence(note: str) -> str:
 def _available(ep: dict, K_name: str, where: str) -> str:
     """The plain sentence of what can be used instead of K_Ic."""
     have = []
+    if ep.get("J_kJ_per_m2") is not None:
+        have.append(f"J = {ep['J_kJ_per_m2']:.1f} kJ/m² "
+                    f"({'qualifies' if ep['J_valid'] else 'does not qualify'} by ASTM E1820 size)")
     if ep.get("K_J_MPa_sqrt_m") is not None:
         have.append(f"{K_name} = {ep['K_J_MPa_sqrt_m']:.1f} MPa·m^½ "
                     f"({'qualifies' if ep['K_J_valid'] else 'does not qualify'} by ASTM E1921 size)")
     if ep.get("CTOD_mm") is not None:
         have.append(f"CTOD = {ep['CTOD_mm']:.4f} mm "
                     f"({'qualifies' if ep['CTOD_valid'] else 'does not qualify'} by ISO 12135 capacity)")
-    return f"Available instead {where}: " + " and ".join(have) + "."
+    return f"Available instead {where}: " + ", ".join(have[:-1]) + (" and " if len(have) > 1 else "") + have[-1] + "."

@@ -263,7 +263,16 @@ def load_displacement_figure(result, load_kN, disp_mm, *, title: str | None = No
 
 
 def plot_bytes(result, load_kN, disp_mm, fmt: str = "png", dpi: int = 200, **kw) -> bytes:
-    """The plot rendered to PNG or SVG bytes (see :func:`load_displacement_figure`)."""
+    """The plot rendered to PNG or SVG bytes.
+
+    Parameters
+    ----------
+    result, load_kN, disp_mm, **kw
+        As for :func:`load_displacement_figure` (load kN, displacement mm).
+    fmt : {"png", "svg"}
+    dpi : int
+        Resolution of a PNG, dots per inch.
+    """
     fig = load_displacement_figure(result, load_kN, disp_mm, **kw)
     buf = io.BytesIO()
     fig.savefig(buf, format=fmt, dpi=dpi)

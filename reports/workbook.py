@@ -1,12 +1,16 @@
 """The results workbook (Excel, written with openpyxl).
 
 Sheets: ``Results`` (one row per specimen), ``Checks`` (one row per check),
-and one sheet per reduced specimen with its origin-corrected record.  Units
-are in the headers, the header row is frozen, numbers carry number formats.
-The file is written atomically.
+and one sheet per reduced specimen with its origin-corrected record and,
+beside it, what the record is (file, SHA-256, the origin offset subtracted,
+the construction's loads).  Units are in the headers, the header row is
+frozen, numbers carry number formats, long texts wrap.  Values that are not
+finite are left empty (Excel has no NaN).  The file is written atomically.
 """
 
 from __future__ import annotations
+
+import math
 
 import numpy as np
 
@@ -17,6 +21,8 @@ from reduce.sheet import safe_name
 RESULT_COLUMNS = [
     ("Specimen", "specimen", None), ("Heat", "heat", None), ("Geometry", "geometry", None),
     ("Rule set", "rule_set", None),
+    ("Temperature (°C)", ("specimen_data", "temperature_C"), "0.0"),
+    ("Orientation", ("specimen_data", "orientation"), None),
     ("B (mm)", ("specimen_data", "B_mm"), "0.00"), ("B_N (mm)", ("specimen_data", "B_N_mm"), "0.00"),
     ("W (mm)", ("specimen_data", "W_mm"), "0.00"), ("S (mm)", ("specimen_data", "S_mm"), "0.00"),
     ("a (mm)", "a_mm", "0.00"), ("a/W", "a_over_W", "0.000"), ("f(a/W)", "f_a_over_W", "0.000"),
@@ -35,11 +41,24 @@ RESULT_COLUMNS = [
     ("CTOD (mm)", ("elastic_plastic", "CTOD_mm"), "0.0000"),
     ("CTOD qualifies", ("elastic_plastic", "CTOD_valid"), None),
     ("EP valid", ("elastic_plastic", "valid"), None),
-    ("Reasons", "reasons", None), ("Record SHA-256", "record_sha256", None), ("Error", "error", None),
+    ("Reasons", "reasons", None), ("Caveats", "caveats", None), ("Warnings", "warnings", None),
+    ("Record", "record", None), ("Record SHA-256", "record_sha256", None), ("Error", "error", None),
 ]
+
+#: column widths (characters) of the long texts
+_WIDE = {"Reasons": 60, "Caveats": 40, "Warnings": 40, "Record": 24, "Record SHA-256": 68, "Error": 60}
 
 #: most samples written per specimen sheet (Excel holds about a million rows)
 MAX_RECORD_ROWS = 20000
+
+
+def _cell(v):
+    """A value as a cell takes it: NaN and infinities empty, numpy scalars plain."""
+    if hasattr(v, "item"):
+        v = v.item()
+    if isinstance(v, float) and not math.isfinite(v):
+        return None
+    return v
 
 
 def _get(d, key):
@@ -48,10 +67,26 @@ def _get(d, key):
         key = key[1]
     v = d.get(key)
     if isinstance(v, list):
-        return "; ".join(str(x) for x in v)
+        return "; ".join(str(x) for x in v) or None
     if isinstance(v, bool):
         return "yes" if v else "no"
-    return v
+    return _cell(v)
+
+
+def _sheet_name(specimen: str, used: set) -> str:
+    """A unique sheet name (Excel: at most 31 characters, compared without case).
+
+    >>> used = {"results", "checks"}
+    >>> _sheet_name("Results", used), _sheet_name("results", used), _sheet_name("A/1", used)
+    ('Results_2', 'results_3', 'A_1')
+    """
+    name = safe_name(specimen)[:28] or "specimen"
+    base, n = name, 2
+    while name.lower() in used:
+        name = f"{base[:25]}_{n}"
+        n += 1
+    used.add(name.lower())
+    return name
 
 
 def _header(ws, headers, widths=None):
@@ -64,6 +99,36 @@ def _header(ws, headers, widths=None):
         cell.alignment = Alignment(wrap_text=True, vertical="top")
         ws.column_dimensions[cell.column_letter].width = (widths or {}).get(i, max(10, len(str(cell.value)) + 2))
     ws.freeze_panes = "A2"
+
+
+def _wrap(ws, columns):
+    from openpyxl.styles import Alignment
+
+    for j in columns:
+        for row in ws.iter_rows(min_row=2, min_col=j, max_col=j):
+            row[0].alignment = Alignment(wrap_text=True, vertical="top")
+
+
+def _record_panel(ws, col, result, rec, step):
+    """What the record sheet holds, as label/value rows to the right of the data."""
+    from openpyxl.styles import Font
+
+    items = [("Specimen", result.specimen, None), ("Record", result.record, None),
+             ("Record SHA-256", result.record_sha256, None),
+             ("Origin offset subtracted, v0 (mm)", result.origin_offset_mm, "0.00000"),
+             ("Initial slope (kN/mm)", result.initial_slope_kN_per_mm, "0.000"),
+             ("P_5 (kN)", result.P_5_kN, "0.000"), ("P_Q (kN)", result.P_Q_kN, "0.000"),
+             ("P_max (kN)", result.P_max_kN, "0.000"),
+             ("Samples", f"all {rec.load_kN.size}" if step == 1 else f"1 in {step} of {rec.load_kN.size}", None)]
+    for i, (label, value, fmt) in enumerate(items, start=1):
+        ws.cell(row=i, column=col, value=label).font = Font(bold=True)
+        c = ws.cell(row=i, column=col + 1, value=_cell(value))
+        if fmt:
+            c.number_format = fmt
+    from openpyxl.utils import get_column_letter
+
+    ws.column_dimensions[get_column_letter(col)].width = 32
+    ws.column_dimensions[get_column_letter(col + 1)].width = 30
 
 
 def write_workbook(path, rows) -> None:
@@ -83,13 +148,15 @@ def write_workbook(path, rows) -> None:
     ws.title = "Results"
     dicts = [r.to_dict() for r, _, _ in rows]
     columns = RESULT_COLUMNS
-    _header(ws, [h for h, _, _ in columns])
+    _header(ws, [h for h, _, _ in columns], {j: _WIDE[h] for j, (h, _, _) in enumerate(columns, start=1)
+                                             if h in _WIDE})
     for d in dicts:
         ws.append([_get(d, key) for _, key, _ in columns])
     for j, (_, _, fmt) in enumerate(columns, start=1):
         if fmt:
             for row in ws.iter_rows(min_row=2, min_col=j, max_col=j):
                 row[0].number_format = fmt
+    _wrap(ws, [j for j, (h, _, _) in enumerate(columns, start=1) if h in _WIDE])
 
     wc = wb.create_sheet("Checks")
     _header(wc, ["Specimen", "Check", "Result", "Value", "Limit", "Clause", "Note"],
@@ -98,35 +165,30 @@ def write_workbook(path, rows) -> None:
         # K_Ic checks, then the elastic-plastic ones (reduce/elastic_plastic.py)
         for c in (d.get("checks") or []) + ((d.get("elastic_plastic") or {}).get("checks") or []):
             verdict = {True: "pass", False: "fail", None: "not assessed"}[c["passed"]]
-            wc.append([d["specimen"], c["name"], verdict, c["value"], c["limit"], c["clause"], c.get("note", "")])
+            wc.append([d["specimen"], c["name"], verdict, _cell(c["value"]), c["limit"], c["clause"],
+                       c.get("note", "")])
     for row in wc.iter_rows(min_row=2, min_col=4, max_col=4):
         row[0].number_format = "0.0000"
+    _wrap(wc, [5, 6, 7])
 
-    used = set(wb.sheetnames)
+    used = {n.lower() for n in wb.sheetnames}
     for result, rec, _ in rows:
         if rec is None or result.error:
             continue
-        name = safe_name(result.specimen)[:28] or "specimen"
-        base, n = name, 2
-        while name in used:
-            name = f"{base[:25]}_{n}"
-            n += 1
-        used.add(name)
-        wr = wb.create_sheet(name)
+        wr = wb.create_sheet(_sheet_name(result.specimen, used))
         has_t = rec.time_s is not None
         heads = (["Time (s)"] if has_t else []) + ["Displacement, origin-corrected (mm)", "Load (kN)"]
-        _header(wr, heads, {1: 14, 2: 22, 3: 14})
+        _header(wr, heads, {j: 14 if h != heads[-2] else 22 for j, h in enumerate(heads, start=1)})
         step = max(1, int(np.ceil(rec.load_kN.size / MAX_RECORD_ROWS)))
         v = rec.disp_mm[::step] - (result.origin_offset_mm or 0.0)
         P = rec.load_kN[::step]
         cols = ([rec.time_s[::step]] if has_t else []) + [v, P]
         for vals in zip(*cols):
-            wr.append([float(x) for x in vals])
+            wr.append([_cell(float(x)) for x in vals])
         fmts = (["0.000"] if has_t else []) + ["0.00000", "0.0000"]
         for j, fmt in enumerate(fmts, start=1):
             for row in wr.iter_rows(min_row=2, min_col=j, max_col=j):
                 row[0].number_format = fmt
-        if step > 1:
-            wr.cell(row=1, column=len(heads) + 2, value=f"every {step}th sample of {rec.load_kN.size}")
+        _record_panel(wr, len(heads) + 2, result, rec, step)
     with atomic_path(path) as tmp:
         wb.save(tmp)

@@ -420,3 +420,22 @@ def test_paragraph_names_the_failed_check():
     k_line = next(x for x in lines if x.startswith("K_J = "))
     assert "does not qualify" in k_line and "kjc_ligament_size" in k_line
     assert any("Poisson's ratio not given" in x for x in lines)
+
+
+def test_sample_tough_steel_certificate_carries_the_elastic_plastic_section(tmp_path):
+    import hashlib
+
+    from pypdf import PdfReader
+    from reports.certificate import build_certificate, load_lab_profile
+
+    rows = [x for x in reduce_sheet(SAMPLE) if x[0].heat == "H-PV33"]
+    tough = _tough(rows)
+    assert len(tough) == len(rows) == 3
+    sha = hashlib.sha256(SAMPLE.read_bytes()).hexdigest()
+    pdf = tmp_path / "pv.pdf"
+    build_certificate(pdf, "H-PV33", rows, load_lab_profile(), "e399", SAMPLE, sha, draft=True)
+    text = " ".join(" ".join(p.extract_text().split()) for p in PdfReader(pdf).pages)
+    assert text.count("Available instead") == 3
+    for r in tough:
+        ep = r.extra["elastic_plastic"]
+        assert f"{ep['K_J_MPa_sqrt_m']:.1f}" in text and f"{ep['CTOD_mm']:.4f}" in text
