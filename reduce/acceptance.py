@@ -29,6 +29,18 @@ results than the rule allows, and every retest passes; the low result is then
 set aside (kept and shown) and the passing retests count.  A ``retest_of``
 naming a specimen that was not low makes the specimen an ordinary result.
 
+Two more things stop an assessment (``not assessed``, the reason names them):
+two specimens whose records have the same SHA-256 (one test cannot count as
+two specimens; the later row is not counted, and the sheet must say which
+row is the real test), and two requirements that both apply to a heat's
+material, orientation and temperature (the specification is ambiguous for
+that material).
+
+When too few results count and every one that does not count failed a size
+check by a wide margin (:data:`WIDE_SIZE_MARGIN`), the reason says that
+larger specimens are needed (the size the results require) and points to the
+elastic–plastic result instead of asking for more specimens of the same size.
+
 Pure: no files, no printing.
 
 References
@@ -47,6 +59,55 @@ from reduce.spec import Requirement, Specification
 
 ACCEPTED, REJECTED, RETEST, NOT_ASSESSED = "accepted", "rejected", "retest needed", "not assessed"
 VERDICTS = (ACCEPTED, REJECTED, RETEST, NOT_ASSESSED)
+#: a size check failed "by a wide margin" when the size required is at least this many
+#: times the specimen's (cracktip's threshold, no source): more specimens of the same
+#: size are then not worth testing for K_Ic
+WIDE_SIZE_MARGIN = 2.0
+#: the size checks and the dimension each one is about
+SIZE_CHECKS = {"ligament_size": "W − a", "thickness_size": "B", "crack_length_size": "a"}
+
+
+@dataclass(frozen=True)
+class SizeShortfall:
+    """A failed E399 / ISO 12737 size check of one specimen.
+
+    Attributes
+    ----------
+    check : str
+        ``ligament_size``, ``thickness_size`` or ``crack_length_size``.
+    actual_mm, required_mm : float
+        The specimen's dimension and the 2.5 (K_Q/σ_YS)² it had to reach, mm.
+    K_Q : float
+        MPa·m^½.
+
+    References
+    ----------
+    ASTM E399 clause 9.1.3; ISO 12737 (size requirement 2.5 (K_Q/σ_YS)²), from memory.
+    """
+
+    check: str
+    actual_mm: float
+    required_mm: float
+    K_Q: float
+
+    @property
+    def label(self) -> str:
+        return SIZE_CHECKS[self.check]
+
+    @property
+    def wide(self) -> bool:
+        return self.required_mm >= WIDE_SIZE_MARGIN * self.actual_mm
+
+    @property
+    def K_capacity(self) -> float:
+        """The largest K that this dimension can qualify as K_Ic, MPa·m^½.
+
+        The requirement grows as K², so it is K_Q·√(actual/required).
+
+        >>> round(SizeShortfall("ligament_size", 25.0, 100.0, 120.0).K_capacity, 6)
+        60.0
+        """
+        return self.K_Q * (self.actual_mm / self.required_mm) ** 0.5
 
 
 @dataclass(frozen=True)
@@ -72,6 +133,10 @@ class TestedSpecimen:
         The specimen this one retests (sheet column ``retest_of``).
     where : str
         Sheet and row, for messages.
+    record, record_sha256 : str or None
+        The raw record and the SHA-256 of its bytes.
+    size_shortfalls : tuple of SizeShortfall
+        The size checks it failed.
     """
 
     __test__ = False  # not a pytest test class despite the name
@@ -87,6 +152,9 @@ class TestedSpecimen:
     error: str | None = None
     retest_of: str | None = None
     where: str = ""
+    record: str | None = None
+    record_sha256: str | None = None
+    size_shortfalls: tuple = ()
 
 
 @dataclass(frozen=True)
@@ -94,7 +162,8 @@ class SpecimenRole:
     """The part one specimen played in a heat's verdict.
 
     ``role`` is one of ``counted``, ``low``, ``low, set aside``, ``retest passed``,
-    ``retest low``, ``not counted``, ``not covered``, ``not reduced``, ``bad retest_of``.
+    ``retest low``, ``not counted``, ``not covered``, ``not reduced``, ``bad retest_of``,
+    ``duplicate record``, ``not assessed`` (the requirements are ambiguous for it).
     ``kind`` is ``"K_Ic"`` or ``"K_Q"`` for a value that counted or was low.
     """
 
@@ -175,8 +244,39 @@ def acceptance_inputs(rows) -> list:
             temperature_C=getattr(row, "temperature_C", None), material=meta.get("material"),
             K_Q=result.K_Q_MPa_sqrt_m, qualifies=bool(result.valid and result.K_Ic_MPa_sqrt_m is not None),
             reasons=tuple(result.reasons), error=result.error,
-            retest_of=(meta.get("retest_of") or "").strip() or None, where=where))
+            retest_of=(meta.get("retest_of") or "").strip() or None, where=where,
+            record=result.record, record_sha256=result.record_sha256,
+            size_shortfalls=size_shortfalls(result)))
     return out
+
+
+def size_shortfalls(result) -> tuple:
+    """The size checks a result failed, with the size each required.
+
+    Parameters
+    ----------
+    result : reduce.models.Result
+
+    Returns
+    -------
+    tuple of SizeShortfall
+        Empty when the result has no K_Q or passed its size checks.
+
+    References
+    ----------
+    ASTM E399 clause 9.1.3; ISO 12737 (2.5 (K_Q/σ_YS)²), from memory; the factor
+    is the rule set's (``limits.toml``).
+    """
+    from reduce.rules import rule_set, size_required
+
+    yield_MPa = (result.specimen_data or {}).get("yield_MPa")
+    if result.K_Q_MPa_sqrt_m is None or not yield_MPa:
+        return ()
+    failed = [c for c in result.checks if getattr(c, "name", None) in SIZE_CHECKS and c.passed is False]
+    if not failed:
+        return ()
+    required = size_required(result.K_Q_MPa_sqrt_m, yield_MPa, rule_set(result.rule_set)["size"]["factor"])
+    return tuple(SizeShortfall(c.name, float(c.value), required, result.K_Q_MPa_sqrt_m) for c in failed)
 
 
 def heat_verdicts(tests, spec: Specification) -> list:
@@ -210,7 +310,11 @@ def heat_verdicts(tests, spec: Specification) -> list:
         if t.heat:
             by_heat[t.heat].append(t)
     all_by_id = {t.specimen: t for t in tests}
-    return [_heat_verdict(heat, ts, all_by_id, spec) for heat, ts in by_heat.items()]
+    first_with_record = {}
+    for t in tests:
+        if t.record_sha256 and not t.error:
+            first_with_record.setdefault(t.record_sha256, t)
+    return [_heat_verdict(heat, ts, all_by_id, spec, first_with_record) for heat, ts in by_heat.items()]
 
 
 def without_heat(tests) -> list:
@@ -218,14 +322,55 @@ def without_heat(tests) -> list:
     return [t for t in tests if not t.heat]
 
 
-def _heat_verdict(heat, tests, all_by_id, spec) -> HeatVerdict:
+def _ambiguity(heat, tests, materials, spec) -> HeatVerdict | None:
+    """A "not assessed" verdict when two requirements both apply to a material of the heat."""
+    pairs = {(a.index, b.index): (a, b) for m in materials if m for a, b in spec.overlaps_for(m)}
+    if not pairs:
+        return None
+    said = []
+    for a, b in pairs.values():
+        band = (f"{a.orientation} at {a.temperature_C:g} ± {a.temperature_tolerance_C:g} °C and "
+                f"{b.temperature_C:g} ± {b.temperature_tolerance_C:g} °C")
+        said.append(f"requirement {a.index} ({a.label}) and requirement {b.index} ({b.label}) both apply to "
+                    f"this heat's material at {band}")
+    shown = "; ".join(sorted(m for m in materials if m))
+    reason = (f"cannot be assessed: {spec.citation} is ambiguous for material {shown!r}: " + "; ".join(said)
+              + ": a specimen could count under either; make the requirements' material texts (or "
+                "temperatures) exclusive")
+    roles = [SpecimenRole(t.specimen, "not assessed", note="the specification's requirements are ambiguous "
+                          "for this heat (see the reason)") for t in tests]
+    return HeatVerdict(heat, NOT_ASSESSED, reason, spec.citation, [], roles)
+
+
+def _duplicate_record(t, first_with_record) -> str | None:
+    """Why ``t`` cannot count: its record's bytes are those of an earlier specimen."""
+    first = first_with_record.get(t.record_sha256) if t.record_sha256 else None
+    if first is None or first is t:
+        return None
+    other = first.specimen + ("" if first.heat == t.heat else f" (heat {first.heat})")
+    if t.record == first.record:
+        return (f"{t.specimen} names the record of {other}, {t.record}: one test cannot count as two "
+                "specimens")
+    return (f"{t.specimen}'s record {t.record} has the same SHA-256 ({t.record_sha256[:12]}…) as "
+            f"the record of {other}, {first.record}: one test cannot count as two specimens")
+
+
+def _heat_verdict(heat, tests, all_by_id, spec, first_with_record=None) -> HeatVerdict:
     materials = {t.material for t in tests}
+    ambiguous = _ambiguity(heat, tests, materials, spec)
+    if ambiguous is not None:
+        return ambiguous
     applicable = [r for r in spec.requirements if any(r.applies_to_material(m) for m in materials)]
     others, problems, groups = [], [], defaultdict(list)
     for t in tests:
         if t.error:
             others.append(SpecimenRole(t.specimen, "not reduced", note=t.error))
             problems.append(f"{t.specimen} could not be reduced")
+            continue
+        dup = _duplicate_record(t, first_with_record or {})
+        if dup:
+            others.append(SpecimenRole(t.specimen, "duplicate record", note=dup + "; not counted"))
+            problems.append(dup + "; correct the record column")
             continue
         req = next((r for r in applicable if r.covers(t.orientation, t.temperature_C, t.material)), None)
         if req is None:
@@ -355,9 +500,11 @@ def _outcome(req: Requirement, tests, spec) -> RequirementOutcome:
     if status != REJECTED and n < req.min_valid:
         status = _worse(status, RETEST)
         missing = [r.specimen for r in roles if r.role == "not counted"]
+        by_id = {t.specimen: t for t in tests}
         reasons.append(f"{n} valid result{'s' if n != 1 else ''}, {req.min_valid} required"
-                       + (f" ({', '.join(missing)} do not count)" if missing else "")
-                       + "; test further specimens")
+                       + (f" ({', '.join(missing)} {'does' if len(missing) == 1 else 'do'} not count)"
+                          if missing else "")
+                       + "; " + (_too_small([by_id[s] for s in missing], req) or "test further specimens"))
     if status == ACCEPTED:
         lowest = min(v for _, (v, _) in counted)
         kinds = {k for _, (_, k) in counted}
@@ -365,6 +512,35 @@ def _outcome(req: Requirement, tests, spec) -> RequirementOutcome:
         reasons.insert(0, f"{n} valid results ({req.min_valid} required), lowest {_K(lowest)} ≥ "
                           f"{_K(minimum)} MPa·m^½{on_K_Q}")
     return RequirementOutcome(req, status, f"{label}: " + "; ".join(reasons), roles)
+
+
+def _span(values, fmt="{:.1f}") -> str:
+    lo, hi = min(values), max(values)
+    return fmt.format(lo) if fmt.format(lo) == fmt.format(hi) else f"{fmt.format(lo)}–{fmt.format(hi)}"
+
+
+def _too_small(not_counting, req) -> str | None:
+    """What to say when every result that does not count failed a size check by a wide margin."""
+    if not not_counting or not all(any(f.wide for f in t.size_shortfalls) for t in not_counting):
+        return None
+    shortfalls = [f for t in not_counting for f in t.size_shortfalls if f.wide]
+    by_label = defaultdict(list)
+    for f in shortfalls:
+        by_label[f.label].append(f)
+    needs = "; ".join(f"{label} ≥ {_span([f.required_mm for f in fs])} mm (these have "
+                      f"{_span([f.actual_mm for f in fs])} mm)" for label, fs in by_label.items())
+    rule = f"at K_Q {_span([f.K_Q for f in shortfalls])} MPa·m^½ the size rule 2.5 (K_Q/σ_YS)² asks {needs}"
+    # a specimen qualifies only up to its smallest dimension's capacity
+    capacity = max(min(f.K_capacity for f in t.size_shortfalls) for t in not_counting)
+    largest = "; ".join(f"{label} ≥ {max(f.required_mm for f in fs):.0f} mm" for label, fs in by_label.items())
+    where_next = (f"test larger specimens ({largest}), or see the elastic–plastic result (J, K_J, CTOD) of "
+                  "these specimens, which is not K_Ic and counts only where the specification allows it")
+    if capacity < req.min_K_Ic:
+        return (f"valid K_Ic cannot be obtained with specimens of this size: {rule}, and the largest K_Ic "
+                f"they could qualify ({capacity:.1f} MPa·m^½) is below the minimum {req.min_K_Ic:.1f}; "
+                + where_next)
+    return (f"specimens of this size are too small for a valid K_Ic at this toughness: {rule}; "
+            "more specimens of this size are unlikely to count: " + where_next)
 
 
 def _retests(t, v, k, rts, req, spec, roles, counted):

@@ -10,7 +10,7 @@ import argparse
 import json
 import sys
 
-from reduce._version import __version__
+from reduce._version import PROGRAM_VERSION
 from reduce.errors import CracktipError
 
 EXIT_OK, EXIT_BAD_INPUT = 0, 2
@@ -22,37 +22,69 @@ def _json_default(x):
     raise TypeError(f"not JSON-serialisable: {type(x).__name__}")
 
 
-def results_json(results) -> str:
-    """The results as the documented JSON list."""
-    return json.dumps([r.to_dict() for r in results], indent=2, default=_json_default, allow_nan=False)
+def results_json(results, sheets=None) -> str:
+    """The results as the documented JSON list.
+
+    ``sheets``, when given, is the sheet path of each result; it is added to
+    each object under the key ``sheet``.
+    """
+    dicts = [r.to_dict() for r in results]
+    if sheets is not None:
+        for d, sheet in zip(dicts, sheets, strict=True):
+            d["sheet"] = str(sheet)
+    return json.dumps(dicts, indent=2, default=_json_default, allow_nan=False)
 
 
 def cmd_reduce(args) -> int:
     from reduce.atomic import write_text_atomic
-    from reduce.pipeline import reduce_sheet
+    from reduce.batch import progress_wanted, reduce_sheets
     from reduce.rules import rule_set
     from reports.table import summary_table
 
-    rows = reduce_sheet(args.sheet, args.rules)
-    results = [r for r, _, _ in rows]
-    print(summary_table(results, rule_set(args.rules)["title"]))
+    # rows of every sheet in parallel (reduce/batch.py); records kept only for the workbook
+    batch = reduce_sheets(args.sheets, args.rules, jobs=args.jobs,
+                          progress=progress_wanted(args.quiet), keep_records=bool(args.xlsx))
+    for message in batch.errors:
+        print(f"cracktip: {message}", file=sys.stderr)
+    results = [r.result for r in batch.rows]
+    title = rule_set(args.rules)["title"]
+    for sheet in batch.sheets:
+        if len(batch.sheets) > 1:
+            print(f"Sheet: {sheet}")
+        print(summary_table([r.result for r in batch.rows if r.sheet == sheet], title))
     if args.json:
-        write_text_atomic(args.json, results_json(results) + "\n")
+        write_text_atomic(args.json, results_json(results, [r.sheet for r in batch.rows]) + "\n")
         print(f"results written to {args.json}")
     if args.xlsx:
         from reports.workbook import write_workbook
 
-        write_workbook(args.xlsx, rows)
+        write_workbook(args.xlsx, batch.triples())
         print(f"workbook written to {args.xlsx}")
-    return EXIT_OK if all(r.error is None for r in results) else EXIT_BAD_INPUT
+    ok = not batch.errors and all(r.error is None for r in results)
+    return EXIT_OK if ok else EXIT_BAD_INPUT
+
+
+def _jobs(text: str) -> int:
+    try:
+        n = int(text)
+    except ValueError:
+        n = 0
+    if n < 1:
+        raise argparse.ArgumentTypeError(f"expected a whole number of at least 1, got {text!r}")
+    return n
 
 
 def add_reduce_command(sub) -> None:
-    r = sub.add_parser("reduce", help="reduce every row of a test sheet")
-    r.add_argument("sheet", help="test sheet (.csv or .xlsx), one row per specimen")
+    r = sub.add_parser("reduce", help="reduce every row of one or more test sheets")
+    r.add_argument("sheets", nargs="+", metavar="SHEET",
+                   help="test sheet (.csv or .xlsx), one row per specimen, or a folder of sheets")
     add_rules_option(r)
     r.add_argument("--json", metavar="OUT", help="write the results as JSON")
     r.add_argument("--xlsx", metavar="OUT", help="write the results as an Excel workbook")
+    r.add_argument("--jobs", type=_jobs, metavar="N",
+                   help="reduce N rows at a time in parallel (default: every available core)")
+    r.add_argument("--quiet", action="store_true",
+                   help="no progress bar (there is none either when standard error is not a terminal)")
     r.set_defaults(func=cmd_reduce)
 
 
@@ -83,7 +115,7 @@ def build_parser() -> argparse.ArgumentParser:
         prog="cracktip",
         description="Reduce fracture-toughness test records (ASTM E399 / ISO 12737) to K_Q, "
                     "validity and K_Ic, and issue certificates.")
-    p.add_argument("--version", action="version", version=f"cracktip {__version__}")
+    p.add_argument("--version", action="version", version=f"cracktip {PROGRAM_VERSION}")
     sub = p.add_subparsers(dest="command", required=True)
     for module, func in COMMANDS:
         getattr(importlib.import_module(module), func)(sub)

@@ -14,7 +14,7 @@ import numpy as np
 
 import specimens
 from reduce import rules as R
-from reduce.construction import loading_rate, secant_construction
+from reduce.construction import loading_envelope, loading_rate, secant_construction
 from reduce.elastic_plastic import elastic_plastic_result
 from reduce.errors import CracktipError, ReductionError
 from reduce.models import Result, Specimen
@@ -133,6 +133,9 @@ def reduce_arrays(load_kN, disp_mm, specimen: Specimen, time_s=None, rules: str 
     the displacement type in force) is compared with it by the advisory
     check ``compliance_crack_length``; a geometry definition with a caveat
     fails ``calibration_confirmed``, so its K_Q never qualifies.
+    Unloading–reloading cycles are removed before the construction
+    (:func:`reduce.construction.loading_envelope`); ``curve_note`` and
+    ``warnings`` then say so.
 
     Parameters
     ----------
@@ -183,6 +186,11 @@ def reduce_arrays(load_kN, disp_mm, specimen: Specimen, time_s=None, rules: str 
     disp = np.asarray(disp_mm, dtype=float)
     if load.shape != disp.shape or load.ndim != 1:
         raise ReductionError("load and displacement must be 1-D arrays of the same length")
+    # unloading-reloading cycles go first, so P_Q never comes from an unloading line
+    envelope = loading_envelope(load, disp)
+    if envelope.keep is not None:
+        load, disp = load[envelope.keep], disp[envelope.keep]
+        time_s = None if time_s is None else np.asarray(time_s, dtype=float)[envelope.keep]
     sec = secant_construction(load, disp, R.secant_ratio())
 
     kind = displacement_type_of(geo, specimen)
@@ -214,7 +222,8 @@ def reduce_arrays(load_kN, disp_mm, specimen: Specimen, time_s=None, rules: str 
     return Result(
         specimen=specimen.specimen, geometry=geo.designation, rule_set=rules, heat=specimen.heat,
         P_Q_kN=sec.P_Q, P_max_kN=sec.P_max, P_5_kN=sec.P_5, P_max_over_P_Q=ratio,
-        curve_type=sec.curve_type, curve_note=sec.note,
+        curve_type=sec.curve_type,
+        curve_note=f"{envelope.note}; {sec.note}" if envelope.note else sec.note,
         initial_slope_kN_per_mm=sec.fit.slope, fit_r_squared=sec.fit.r_squared,
         fit_residual_sd_kN=sec.fit.residual_sd_kN, fit_window_fraction_of_P_max=sec.fit.window_fraction,
         origin_offset_mm=sec.fit.origin_mm,
@@ -224,9 +233,11 @@ def reduce_arrays(load_kN, disp_mm, specimen: Specimen, time_s=None, rules: str 
         checks=checks,
         reasons=[] if valid else reasons_in_words(checks, limits["core_checks"], advisory),
         a_compliance_mm=a_compliance, displacement_type=kind, crack_front_scheme=front.scheme,
-        caveats=[geo.caveat] if geo.caveat else [], warnings=warnings_in_words(checks, advisory),
+        caveats=[geo.caveat] if geo.caveat else [],
+        warnings=warnings_in_words(checks, advisory) + ([envelope.note] if envelope.note else []),
         record_sha256=record_sha256, record=specimen.record, specimen_data=specimen.describe(),
-        extra={"elastic_plastic": elastic_plastic_result(load, disp, specimen, sec, a, K_per_kN)},
+        extra={"elastic_plastic": elastic_plastic_result(load, disp, specimen, sec, a, K_per_kN,
+                                                         kic_checks=checks)},
     )
 
 
@@ -264,11 +275,14 @@ def reduce_specimen(specimen: Specimen, rules: str = "e399"):
         rec = read_record(record_path(specimen), load_column=specimen.load_column,
                           displacement_column=specimen.displacement_column,
                           load_unit=specimen.load_unit, displacement_unit=specimen.displacement_unit)
-        result = reduce_arrays(rec.load_kN, rec.disp_mm, specimen, rec.time_s, rules, rec.sha256)
+        result = reduce_arrays(rec.load_kN, rec.disp_mm, specimen, rec.time_s, rules)
+        result.record_sha256 = rec.sha256  # read after the reduction: a large file is hashed beside it
         result.record_notes = list(rec.notes)
         return result, rec
     except (CracktipError, ValueError, KeyError) as exc:
         where = f"{specimen.sheet}, row {specimen.row}: " if specimen.sheet and not isinstance(exc, CracktipError) else ""
+        if rec is not None and isinstance(exc, ReductionError):
+            where = f"{rec.path}: "  # the record was read but cannot be reduced: name it
         msg = exc.args[0] if isinstance(exc, KeyError) and exc.args else exc
         return failed_result(specimen.specimen, rules, f"{where}{msg}", heat=specimen.heat,
                              geometry=specimen.geometry, record=specimen.record,

@@ -32,9 +32,20 @@ encoding; otherwise it parses serially, about twice as slowly.  So:
 - 8-bit records are parsed as UTF-8 with replacement: the data lines are
   ASCII in UTF-8, Latin-1 and cp1252 alike, and the header, which may not be,
   was decoded with the right codec in step 1;
-- the SHA-256 of a file above 1 MiB is computed in a second thread while
-  pandas parses (hashlib releases the GIL); on two cores this hides about
-  half of its cost.
+- the SHA-256 of a file above 1 MiB is computed in a second thread
+  (hashlib releases the GIL) that starts when pandas has parsed the file and
+  runs while the record is checked and reduced: pandas keeps both cores busy
+  while it parses a large file, the reduction after it uses one, so the hash
+  costs little wall time there.  :attr:`Record.sha256` waits for it.
+
+Hostile files: a text record above 1 GiB is refused before it is parsed
+(memory); an XLSX container is checked before openpyxl opens it: the sizes
+its ZIP directory declares (Python's zipfile never inflates a member beyond
+its declared size, and fails on a CRC mismatch) must stay below 1 GiB in
+all, 10,000 members and a compression ratio of 100 for members above
+16 MiB (a ZIP bomb declares far more); workbooks are read only with
+defusedxml's hardened XML parser in openpyxl (no entity expansion, no
+external entities), so a workbook is never evaluated, expanded or followed.
 
 References
 ----------
@@ -58,8 +69,8 @@ import math
 import os
 import re
 import stat
+import threading
 import warnings
-from concurrent.futures import ThreadPoolExecutor
 from dataclasses import dataclass, field
 from itertools import chain, islice
 
@@ -68,7 +79,7 @@ import numpy as np
 from .errors import RecordError
 from .units import LENGTH_TO_MM, LOAD_TO_KN, STRESS_TO_MPA, TIME_TO_S
 
-__all__ = ["Record", "read_record", "sha256_file"]
+__all__ = ["Record", "check_workbook", "read_record", "sha256_file"]
 
 #: bytes and lines looked at to find the layout of a text record
 _HEAD_BYTES = 256 * 1024
@@ -79,8 +90,13 @@ _MIN_VALID_ROWS = 20
 _MAX_BAD_FRACTION = 0.5
 #: how many line numbers a note lists before it says "and N more"
 _LINES_LISTED = 10
-#: files above this size are hashed in a second thread while being parsed
+#: files above this size are hashed in a second thread (module notes)
 _THREAD_HASH_BYTES = 1 << 20
+#: hostile-file limits (module notes; project limits, common practice, no source)
+_MAX_RECORD_BYTES = 1 << 30
+_XLSX_MAX_UNPACKED = 1 << 30
+_XLSX_MAX_MEMBERS = 10_000
+_XLSX_MAX_RATIO, _XLSX_RATIO_FROM = 100, 16 << 20
 
 _SETTLE = {
     "load": "load_column",
@@ -125,9 +141,19 @@ _NUMBER = {
 }
 _EMPTY, _NUM, _TEXT = 0, 1, 2
 
+
+def _numbers_line(sep, decimal):
+    """A pattern for a whole text line of numbers only, in one layout."""
+    num = _NUMBER[decimal].pattern[:-2]  # without the final \Z
+    gap = r"[ \t]+" if sep == " " else rf"[ \t]*{re.escape(sep)}[ \t]*"
+    return re.compile(rf"[ \t]*{num}(?:{gap}{num})*[ \t]*\Z")
+
 #: (delimiter, decimal mark) tried in this order; " " means any whitespace
 _TEXT_LAYOUTS = [(",", "."), ("\t", "."), ("\t", ","), (";", "."), (";", ","), ("|", "."),
                  ("|", ","), (" ", "."), (" ", ",")]
+#: a line these match splits into numbers only: its row statistics need no
+#: token-by-token look (the same answer, much faster on the usual data line)
+_NUMBERS_LINE = {layout: _numbers_line(*layout) for layout in _TEXT_LAYOUTS}
 #: bytes no text record holds (tab, line feed, form feed, carriage return and
 #: the DOS end-of-file mark 0x1A are allowed)
 _CONTROL_BYTES = bytes([*range(0, 9), 11, *range(14, 26), *range(27, 32), 127])
@@ -158,7 +184,9 @@ class Record:
         All headers found, in file order (``"column 3"`` where a column has
         no header).
     sha256 : str
-        SHA-256 of the file's bytes, hexadecimal [3].
+        SHA-256 of the file's bytes, hexadecimal [3].  For a file above
+        1 MiB it is computed in a second thread; reading the attribute waits
+        for it (and raises RecordError if the file could not be read).
     notes : list of str
         Human-readable notes: rows skipped and why, channels not used,
         encoding fallback, time stamps out of order.
@@ -172,8 +200,38 @@ class Record:
     disp_header: str
     time_header: str | None
     columns: list[str]
-    sha256: str
+    _sha256: "str | _Digest" = field(repr=False)
     notes: list[str] = field(default_factory=list)
+
+    @property
+    def sha256(self) -> str:
+        if isinstance(self._sha256, _Digest):
+            self._sha256 = self._sha256.result()
+        return self._sha256
+
+
+class _Digest:
+    """The SHA-256 of a file, computed in a second thread; :meth:`result` waits."""
+
+    def __init__(self, path):
+        self._path, self._hex, self._error = path, None, None
+        self._thread = threading.Thread(target=self._run, name="cracktip-sha256", daemon=True)
+        self._thread.start()
+
+    def _run(self):
+        try:
+            self._hex = sha256_file(self._path)
+        except RecordError as exc:
+            self._error = exc
+
+    def result(self) -> str:
+        self._thread.join()
+        if self._error is not None:
+            raise self._error
+        return self._hex
+
+    def __reduce__(self):  # a record sent to another process carries the finished digest
+        return (str, (self.result(),))
 
 
 @dataclass
@@ -316,14 +374,8 @@ def read_record(path, load_column=None, displacement_column=None, load_unit=None
     def choose(columns):
         return _choose_channels(path, columns, overrides)
 
-    if size <= _THREAD_HASH_BYTES:
-        digest = sha256_file(path)
-        parsed = _read_any(path, head, choose)
-    else:
-        with ThreadPoolExecutor(max_workers=1) as pool:
-            pending = pool.submit(sha256_file, path)
-            parsed = _read_any(path, head, choose)
-            digest = pending.result()
+    parsed = _read_any(path, head, choose, size)
+    digest = sha256_file(path) if size <= _THREAD_HASH_BYTES else _Digest(path)
     return _finish(path, digest, *parsed)
 
 
@@ -364,12 +416,16 @@ def _read_head(path):
         raise RecordError(f"cannot be read ({exc.strerror or exc})", file=path) from None
 
 
-def _read_any(path, head, choose):
+def _read_any(path, head, choose, size):
     if head.startswith(b"PK\x03\x04"):
         return _read_xlsx(path, choose)
     if head.startswith(b"\xd0\xcf\x11\xe0"):
         raise RecordError("is a legacy binary Excel (.xls) or other OLE file; save it as .xlsx, "
                           "CSV or TSV", file=path)
+    if size > _MAX_RECORD_BYTES:
+        raise RecordError(f"is {size / 2**30:.1f} GiB; text records above "
+                          f"{_MAX_RECORD_BYTES / 2**30:.0f} GiB are refused (reading one takes "
+                          "several times its size in memory); split the record", file=path)
     return _read_text(path, head, choose)
 
 
@@ -403,15 +459,17 @@ def _data_like(st):
     return n_num >= 2 and n_num >= n_text
 
 
-def _find_data(rows, decimal):
+def _find_data(rows, decimal, stats=None):
     """First data row and a score for this reading of the rows, or None.
 
     A data row has at least two numbers and more numbers than texts; it
     starts the data if the next row is one too with as many fields, and at
     most one of the five rows after it is not (a bad row may follow).
     The score prefers the reading whose data rows have no text at all.
+    ``stats`` are the rows' :func:`_row_stats` when already known.
     """
-    stats = [_row_stats(r, decimal) for r in rows]
+    if stats is None:
+        stats = [_row_stats(r, decimal) for r in rows]
     filled = [i for i, st in enumerate(stats) if st[0] or st[1]]
     for pos, i in enumerate(filled):
         if not _data_like(stats[i]):
@@ -785,6 +843,22 @@ def _lines(text, truncated):
     return lines[:_HEAD_LINES]
 
 
+def _text_row_stats(lines, rows, sep, decimal):
+    """:func:`_row_stats` of text rows, with the two common cases done in place:
+    a line of numbers only, and a line that does not split at all."""
+    numbers_only, number = _NUMBERS_LINE[(sep, decimal)].match, _NUMBER[decimal].match
+    out = []
+    for line, r in zip(lines, rows):
+        if numbers_only(line):
+            out.append((len(r), 0, len(r)))
+        elif len(r) == 1:
+            t = r[0].strip()
+            out.append((1, 0, 1) if number(t) else (0, 0, 1) if t.lower() in _MISSING else (0, 1, 1))
+        else:
+            out.append(_row_stats(r, decimal))
+    return out
+
+
 def _text_layout(path, lines):
     """Delimiter, decimal mark, first data line and the rows split by that delimiter."""
     best = None
@@ -793,7 +867,7 @@ def _text_layout(path, lines):
         if (sep != " " and sep not in text) or (decimal == "," and "," not in text):
             continue
         rows = [_split_line(line, sep) for line in lines]
-        found = _find_data(rows, decimal)
+        found = _find_data(rows, decimal, _text_row_stats(lines, rows, sep, decimal))
         if found and (best is None or found[1] > best[0]):
             best = (found[1], sep, decimal, found[0], rows)
     if best is None:
@@ -835,8 +909,10 @@ def _read_text(path, head, choose):
     widths = {len(r) for r in data_rows}
     # usecols is slow in the C parser (module notes): only worth it when the
     # other columns hold text, or the lines do not all have the same width
+    numbers_only = _NUMBERS_LINE[(sep, decimal)].match
     all_numeric = len(widths) == 1 and all(
-        _token_class(t, decimal) != _TEXT for r in data_rows for t in r)
+        numbers_only(line) or _row_stats(r, decimal)[1] == 0
+        for line, r in zip(lines[start:], rows[start:]) if any(_clean(t) for t in r))
     options = dict(
         sep=r"\s+" if sep == " " else sep, decimal=decimal, header=None, skiprows=start,
         engine="c", encoding=encoding, encoding_errors="replace", skip_blank_lines=False,
@@ -924,30 +1000,109 @@ def _series_values(series, decimal, pd, shared):
 # XLSX records
 
 
+def _check_container(path, handle):
+    """Refuse a ZIP container whose declared contents are too large (a ZIP bomb)."""
+    import zipfile
+
+    try:
+        members = zipfile.ZipFile(handle).infolist()
+    except (zipfile.BadZipFile, zipfile.LargeZipFile, OSError, EOFError, ValueError) as exc:
+        raise RecordError(f"not a readable XLSX workbook (damaged ZIP container: {exc})",
+                          file=path) from None
+    if len(members) > _XLSX_MAX_MEMBERS:
+        raise RecordError(f"the XLSX container holds {len(members)} parts, more than "
+                          f"{_XLSX_MAX_MEMBERS}; refused as a possible ZIP bomb", file=path)
+    total = 0
+    for m in members:
+        total += m.file_size
+        if m.file_size > _XLSX_RATIO_FROM and m.file_size > _XLSX_MAX_RATIO * max(m.compress_size, 1):
+            raise RecordError(
+                f"the XLSX part '{m.filename}' would inflate from {m.compress_size} to "
+                f"{m.file_size} bytes (ratio {m.file_size / max(m.compress_size, 1):.0f}, more "
+                f"than {_XLSX_MAX_RATIO}); refused as a possible ZIP bomb", file=path)
+        if total > _XLSX_MAX_UNPACKED:
+            raise RecordError(f"the XLSX container declares more than "
+                              f"{_XLSX_MAX_UNPACKED / 2**30:.0f} GiB of contents; refused as a "
+                              "possible ZIP bomb", file=path)
+    handle.seek(0)
+
+
+def check_workbook(path) -> None:
+    """Refuse an XLSX file before it is opened if it could be a ZIP bomb.
+
+    Parameters
+    ----------
+    path : str or os.PathLike
+        The workbook.
+
+    Raises
+    ------
+    RecordError
+        When the ZIP container is damaged, declares more than 1 GiB of
+        contents or 10,000 parts, or a part above 16 MiB inflates more than
+        100-fold; or when openpyxl would parse its XML without defusedxml.
+
+    References
+    ----------
+    PKWARE, "APPNOTE.TXT - .ZIP File Format Specification", sect. 4.3.12
+    (central directory: compressed and uncompressed sizes), from memory.
+    """
+    path = os.fspath(path)
+    _require_hardened_xml(path)
+    try:
+        with open(path, "rb") as handle:
+            _check_container(path, handle)
+    except OSError as exc:
+        raise RecordError(f"cannot be read ({exc.strerror or exc})", file=path) from None
+
+
+def _require_hardened_xml(path):
+    import openpyxl
+
+    if not openpyxl.DEFUSEDXML:
+        raise RecordError("XLSX files are read only with defusedxml's hardened XML parser, which "
+                          "openpyxl is not using (is defusedxml installed, and OPENPYXL_DEFUSEDXML "
+                          "unset?); save the file as CSV or install defusedxml", file=path)
+
+
 def _read_xlsx(path, choose):
     import openpyxl
 
+    _require_hardened_xml(path)
     try:
         handle = open(path, "rb")  # a file object: openpyxl then does not judge by the extension
     except OSError as exc:
         raise RecordError(f"cannot be read ({exc.strerror or exc})", file=path) from None
     with handle:
+        _check_container(path, handle)
         try:
             # read-only, cached values only, external links not loaded:
             # nothing in the workbook is evaluated or followed [2]
             book = openpyxl.load_workbook(handle, read_only=True, data_only=True, keep_links=False)
         except Exception as exc:  # openpyxl raises many types for a bad container
-            raise RecordError(f"not a readable XLSX workbook ({type(exc).__name__}: {exc})",
-                              file=path) from None
+            raise _workbook_error(path, "not a readable XLSX workbook", exc) from None
         try:
             return _read_sheet(path, book, choose)
         except RecordError:
             raise
         except Exception as exc:  # a damaged sheet part deep inside the ZIP
-            raise RecordError(f"the first sheet cannot be read ({type(exc).__name__}: {exc})",
-                              file=path) from None
+            raise _workbook_error(path, "the first sheet cannot be read", exc) from None
         finally:
             book.close()
+
+
+def _workbook_error(path, what, exc):
+    """A RecordError for openpyxl's exception, saying so when defusedxml refused the XML."""
+    from defusedxml import DefusedXmlException
+
+    cause = exc
+    while cause is not None and not isinstance(cause, DefusedXmlException):
+        cause = cause.__cause__ or cause.__context__
+    if cause is not None:
+        return RecordError(f"{what}: its XML declares entities or external references "
+                           f"({cause!r}), which are never expanded or followed; refused as a "
+                           "possible XML bomb", file=path)
+    return RecordError(f"{what} ({type(exc).__name__}: {exc})", file=path)
 
 
 def _read_sheet(path, book, choose):
@@ -1166,6 +1321,6 @@ def _finish(path, digest, columns, choice, values, rows, notes):
         disp_header=choice.disp.column.header,
         time_header=choice.time.column.header if time is not None else None,
         columns=[c.header for c in columns],
-        sha256=digest,
+        _sha256=digest,
         notes=notes,
     )

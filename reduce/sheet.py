@@ -39,7 +39,7 @@ _TEMP = {"C": None, "F": None}
 QUANTITIES = {
     "B": _LENGTH, "BN": _LENGTH, "W": _LENGTH, "S": _LENGTH,
     **{f"a{i}": _LENGTH for i in range(1, 10)},
-    "as1": _LENGTH, "as2": _LENGTH, "X": _LENGTH, "r1": _LENGTH, "r2": _LENGTH,
+    "as1": _LENGTH, "as2": _LENGTH, "X": _LENGTH, "r1": _LENGTH, "r2": _LENGTH, "z": _LENGTH,
     "yield": _STRESS, "tensile": _STRESS, "E": _MODULUS,
     "temperature": _TEMP, "precrack_Kmax": _K,
 }
@@ -243,7 +243,10 @@ def _row_to_specimen(values: dict, columns: dict, sheet: str, row: int) -> Speci
             raise SheetError(f"{geo.designation} needs this dimension", file=sheet, row=row,
                              column=f"{need}_mm")
     kind = _displacement_type(text.get("displacement_type"), geo, sheet, row)
-    dims = {k: q[k] for k in ("X", "r1", "r2") if k in q}
+    if "z" in q and q["z"] < 0:
+        raise SheetError("the knife-edge height cannot be negative", file=sheet, row=row, column=col("z"),
+                         value=values[col("z")])
+    dims = {k: q[k] for k in ("X", "r1", "r2", "z") if k in q}
     surface = tuple(q[k] for k in ("as1", "as2") if k in q)
     return Specimen(
         specimen=text["specimen"], geometry=geo.designation, B=q["B"], W=q["W"],

@@ -166,6 +166,18 @@ class Specification:
         """How verdicts cite the specification, e.g. ``"CS-118 rev. C"``."""
         return f"{self.name} rev. {self.revision}" if self.revision else self.name
 
+    def overlaps_for(self, material: str | None) -> list:
+        """Pairs of requirements that could both claim a specimen of this material.
+
+        Returns
+        -------
+        list of (Requirement, Requirement)
+            In file order; empty when every specimen of the material belongs
+            to at most one requirement.
+        """
+        return [(a, b) for i, a in enumerate(self.requirements) for b in self.requirements[i + 1:]
+                if requirements_overlap(a, b, material)]
+
     def to_dict(self) -> dict:
         return {"name": self.name, "title": self.title, "customer": self.customer,
                 "revision": self.revision, "file": self.file, "sha256": self.sha256,
@@ -338,14 +350,47 @@ def _retest(table, file, where) -> RetestRule | None:
                       source=_text(table, "source", file, where, required=True))
 
 
+def requirements_overlap(a: Requirement, b: Requirement, material: str | None = None) -> bool:
+    """Whether one specimen could belong to both requirements.
+
+    Parameters
+    ----------
+    a, b : Requirement
+    material : str, optional
+        A heat's material.  Without it, the material texts overlap when one
+        contains the other (as the file alone shows); with it, when both
+        apply to it (``"7075"`` and ``"T7351"`` both apply to
+        ``"7075-T7351 plate"``).
+
+    Examples
+    --------
+    >>> s = parse_spec('[specification]\\nname = "X"\\n'
+    ...     '[[requirement]]\\nmaterial = "7075"\\norientation = "L-T"\\ntemperature_C = 21\\n'
+    ...     'min_K_Ic_MPa_sqrt_m = 26\\nmin_valid = 3\\n'
+    ...     '[[requirement]]\\nmaterial = "T7351"\\norientation = "L-T"\\ntemperature_C = 21\\n'
+    ...     'min_K_Ic_MPa_sqrt_m = 24\\nmin_valid = 3\\n')
+    >>> a, b = s.requirements
+    >>> requirements_overlap(a, b), requirements_overlap(a, b, "7075-T7351 plate")
+    (False, True)
+    """
+    if a.orientation != b.orientation or (abs(a.temperature_C - b.temperature_C)
+                                          > a.temperature_tolerance_C + b.temperature_tolerance_C):
+        return False
+    if material is not None:
+        return a.applies_to_material(material) and b.applies_to_material(material)
+    ma, mb = (a.material or "").casefold(), (b.material or "").casefold()
+    return ma in mb or mb in ma
+
+
 def _no_overlap(requirements, file) -> None:
-    """Two requirements that could both claim one specimen make the verdict ambiguous."""
+    """Two requirements that could both claim one specimen make the verdict ambiguous.
+
+    What the file alone shows is refused here; overlaps that only a heat's
+    material reveals are found at acceptance (:meth:`Specification.overlaps_for`).
+    """
     for i, a in enumerate(requirements):
         for b in requirements[i + 1:]:
-            ma, mb = (a.material or "").casefold(), (b.material or "").casefold()
-            if ((ma in mb or mb in ma) and a.orientation == b.orientation
-                    and abs(a.temperature_C - b.temperature_C)
-                    <= a.temperature_tolerance_C + b.temperature_tolerance_C):
+            if requirements_overlap(a, b):
                 raise SpecError(f"overlaps requirement {a.index} ({a.label}): a specimen could "
                                 "belong to both; separate their temperatures or materials",
                                 file=file, where=f"requirement {b.index} ({b.label})")

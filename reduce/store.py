@@ -17,26 +17,35 @@ process is killed, the database is left exactly as it was before the run
 
 The schema is versioned (``PRAGMA user_version`` and the ``schema_info``
 table); a database from a newer cracktip is refused rather than guessed at.
+
+No ``sqlite3`` error leaves this module: every one (opening, a transaction,
+a read, a write; "database is locked" when another run still holds the
+store after the timeout) becomes a :class:`~reduce.errors.StoreError` that
+names the database file and says what to do.
 """
 
 from __future__ import annotations
 
+import functools
 import getpass
 import hashlib
 import json
+import re
 import sqlite3
 from contextlib import contextmanager
 from dataclasses import dataclass, field, replace
 from datetime import datetime, timezone
 from pathlib import Path
 
-from reduce._version import __version__
+from reduce._version import PROGRAM_VERSION as __version__
 from reduce.errors import ApprovalError, StoreError
 
 SCHEMA_VERSION = 1
 #: "CRKT": marks the file as a cracktip store
 APPLICATION_ID = 0x43524B54
 DEFAULT_NAME = "cracktip.db"
+#: how long a command waits for another run to release the store, s (cracktip's choice)
+LOCK_TIMEOUT_S = 30.0
 
 _TABLES = {
     "schema_info": """
@@ -237,6 +246,55 @@ def designation(number: str, revision: int) -> str:
     return f"{number} rev. {revision}"
 
 
+def store_error(path, exc: sqlite3.Error, timeout_s: float = LOCK_TIMEOUT_S) -> StoreError:
+    """A :class:`StoreError` for an ``sqlite3`` error on the store at ``path``: the file and what to do.
+
+    >>> print(store_error("qa.db", sqlite3.OperationalError("database is locked"), 30))
+    qa.db: the store is in use by another cracktip run (still locked after 30 s); nothing of this run was kept: try again when the other run has finished
+    """
+    text = str(exc)
+    low = text.lower()
+    if "locked" in low or "busy" in low:
+        return StoreError(f"{path}: the store is in use by another cracktip run (still locked after "
+                          f"{timeout_s:g} s); nothing of this run was kept: try again when the other "
+                          "run has finished")
+    if "readonly" in low or "read-only" in low:
+        return StoreError(f"{path}: the store cannot be written (the file or its folder is read-only); "
+                          "nothing of this run was kept: ask for write access or give another --db")
+    if "unable to open" in low:
+        return StoreError(f"{path}: the store cannot be opened ({text}); check that the folder exists "
+                          "and can be written, or give another --db")
+    if "not a database" in low or "malformed" in low or "corrupt" in low:
+        return StoreError(f"{path}: not a usable cracktip store ({text}); give --db the cracktip.db file "
+                          "(if this is one, it is damaged: keep a copy and ask whoever looks after the store)")
+    if "disk" in low or "full" in low:
+        return StoreError(f"{path}: the store could not be written ({text}); nothing of this run was "
+                          "kept: free disk space and try again")
+    return StoreError(f"{path}: the store refused the operation ({type(exc).__name__}: {text}); "
+                      "nothing of this run was kept")
+
+
+def _sql_errors_named(method):
+    """Turn an ``sqlite3.Error`` raised inside a Store method into a :class:`StoreError`."""
+    @functools.wraps(method)
+    def run(self, *args, **kwargs):
+        try:
+            return method(self, *args, **kwargs)
+        except sqlite3.Error as exc:
+            raise store_error(self.path, exc, self._timeout) from None
+    return run
+
+
+def _sql_errors_named_everywhere(cls):
+    """Apply :func:`_sql_errors_named` to every public method (``open`` and
+    ``transaction`` translate their own errors)."""
+    for name, member in list(vars(cls).items()):
+        if callable(member) and not name.startswith("_") and name not in ("open", "transaction"):
+            setattr(cls, name, _sql_errors_named(member))
+    return cls
+
+
+@_sql_errors_named_everywhere
 class Store:
     """The QA database.
 
@@ -248,38 +306,61 @@ class Store:
     path : str
     clock : callable, optional
         Returns the present time as ISO text (tests pass a fixed one).
+    timeout_s : float
+        How long to wait for another run's lock, s.
     """
 
-    def __init__(self, connection, path, clock=utc_now):
+    def __init__(self, connection, path, clock=utc_now, timeout_s: float = LOCK_TIMEOUT_S):
         self._db = connection
         self.path = str(path)
         self._clock = clock
+        self._timeout = timeout_s
         self._run: Run | None = None
 
     # ------------------------------------------------------------ opening
     @classmethod
-    def open(cls, path, *, create: bool = True, clock=utc_now) -> "Store":
+    def open(cls, path, *, create: bool = True, clock=utc_now, timeout_s: float | None = None) -> "Store":
         """Open (and when ``create``, make) the store at ``path``.
+
+        Parameters
+        ----------
+        path : str or Path
+            The database file.
+        create : bool
+            Make the store when the file is missing.
+        clock : callable, optional
+        timeout_s : float, optional
+            How long to wait for another run's lock, s; default :data:`LOCK_TIMEOUT_S`.
 
         Raises
         ------
         StoreError
-            If the file is missing and ``create`` is false, is not a cracktip
-            store, or was written by a newer schema.
+            If the file is missing and ``create`` is false, is a folder, is not
+            a cracktip store, was written by a newer schema, or cannot be
+            opened or read (locked, read-only, damaged).
         """
         path = Path(path)
+        timeout_s = LOCK_TIMEOUT_S if timeout_s is None else timeout_s
+        if path.is_dir():
+            raise StoreError(f"{path}: is a folder, not a store; give --db the store file, "
+                             f"e.g. {path / DEFAULT_NAME}")
         if not path.exists() and not create:
             raise StoreError(f"{path}: no cracktip store here; give --db, or run "
                              "`cracktip accept SHEET --spec SPEC` first to make one")
+        con = None
         try:
             if create:
                 path.parent.mkdir(parents=True, exist_ok=True)
-            con = sqlite3.connect(str(path), timeout=30.0, isolation_level=None)
+            con = sqlite3.connect(str(path), timeout=timeout_s, isolation_level=None)
             con.execute("PRAGMA foreign_keys = ON")
-            store = cls(con, path, clock)
+            store = cls(con, path, clock, timeout_s)
             store._prepare(create)
-        except sqlite3.DatabaseError as exc:
-            raise StoreError(f"{path}: not a usable cracktip store ({exc})") from None
+        except (sqlite3.Error, StoreError) as exc:
+            if con is not None:
+                con.close()
+            if isinstance(exc, StoreError):
+                raise
+            raise store_error(path, exc, timeout_s) from None
         return store
 
     def _prepare(self, create: bool) -> None:
@@ -340,20 +421,32 @@ class Store:
             If a transaction is already open on this store.
         """
         if self._run is not None:
-            raise StoreError("a transaction is already open on this store")
+            raise StoreError(f"{self.path}: a transaction is already open on this store")
         db = self._db
-        db.execute("BEGIN IMMEDIATE")
+        try:
+            db.execute("BEGIN IMMEDIATE")
+        except sqlite3.Error as exc:
+            raise store_error(self.path, exc, self._timeout) from None
         try:
             now = self._clock()
-            cur = db.execute("INSERT INTO runs (command, argv, program_version, account, started_at) "
-                             "VALUES (?, ?, ?, ?, ?)",
-                             (command, canonical_json(list(argv)), __version__, _account(), now))
+            try:
+                cur = db.execute("INSERT INTO runs (command, argv, program_version, account, started_at) "
+                                 "VALUES (?, ?, ?, ?, ?)",
+                                 (command, canonical_json(list(argv)), __version__, _account(), now))
+            except sqlite3.Error as exc:
+                raise store_error(self.path, exc, self._timeout) from None
             self._run = Run(cur.lastrowid, command, now, tuple(argv), __version__, _account())
             yield self._run
-            db.execute("COMMIT")
+            try:
+                db.execute("COMMIT")
+            except sqlite3.Error as exc:
+                raise store_error(self.path, exc, self._timeout) from None
         except BaseException:
             if db.in_transaction:  # a failed COMMIT may already have rolled back
-                db.execute("ROLLBACK")
+                try:
+                    db.execute("ROLLBACK")
+                except sqlite3.Error:
+                    pass  # SQLite rolls back an unfinished transaction when the connection closes
             raise
         finally:
             self._run = None
@@ -489,17 +582,36 @@ class Store:
                              [(aid, rid) for rid in reduction_ids])
         return aid
 
-    def next_certificate_number(self, prefix: str = "CT", reserved: int = 0) -> str:
-        """A new certificate number, ``PREFIX-YEAR-NNNN``, counting within the year.
+    def next_certificate_number(self, prefix: str = "CT", reserved=()) -> str:
+        """A new certificate number, ``PREFIX-YEAR-NNNN``: one more than the highest of the year.
 
-        ``reserved`` numbers already handed out in this transaction but not
-        yet stored are skipped.
+        Parameters
+        ----------
+        prefix : str
+            The lab's certificate prefix (letters, digits and ``-``).
+        reserved : iterable of str
+            Numbers handed out in this transaction but not yet stored.
+
+        >>> import tempfile, os
+        >>> with tempfile.TemporaryDirectory() as d:
+        ...     with Store.open(os.path.join(d, "qa.db"), clock=lambda: "2031-05-01T10:00:00+00:00") as st:
+        ...         with st.transaction("certify"):
+        ...             st.next_certificate_number("AMTL", reserved=["AMTL-2031-0001"])
+        'AMTL-2031-0002'
         """
         run = self._writing()
         stem = f"{prefix}-{run.started_at[:4]}-"
-        n = self._db.execute("SELECT count(DISTINCT number) FROM certificates WHERE number LIKE ?",
-                             (stem + "%",)).fetchone()[0]
-        return f"{stem}{n + reserved + 1:04d}"
+        pattern = re.compile(re.escape(stem) + r"(\d+)$")
+        used = [r[0] for r in self._db.execute("SELECT DISTINCT number FROM certificates WHERE "
+                                                "substr(number, 1, ?) = ?", (len(stem), stem))]
+        serials = [int(m.group(1)) for m in map(pattern.match, list(used) + list(reserved)) if m]
+        return f"{stem}{max(serials, default=0) + 1:04d}"
+
+    def heat_of_certificate_number(self, number: str) -> str | None:
+        """The heat an issued certificate number belongs to, or ``None`` when unused."""
+        row = self._db.execute("SELECT heat FROM certificates WHERE number = ? ORDER BY id LIMIT 1",
+                               (number,)).fetchone()
+        return None if row is None else row[0]
 
     def add_certificate(self, *, heat: str, approval_id: int, number: str, revision: int,
                         supersedes_id: int | None, pdf: bytes, file: str | None) -> int:
@@ -620,6 +732,12 @@ class Store:
             raise StoreError(f"no certificate with id {certificate_id} in {self.path}")
         return bytes(row[0])
 
+    def reduction_rule_set(self, reduction_id: int) -> dict | None:
+        """The rule set exactly as a reduction applied it (name, limits, secant ratio)."""
+        row = self._db.execute("SELECT rs.content FROM reductions r JOIN rule_sets rs ON rs.id = r.rule_set_id "
+                               "WHERE r.id = ?", (reduction_id,)).fetchone()
+        return None if row is None else json.loads(row[0])
+
     def heats(self) -> list:
         return [r[0] for r in self._db.execute(
             "SELECT heat FROM reductions WHERE heat != '' GROUP BY heat ORDER BY min(id)")]
@@ -633,19 +751,32 @@ class Store:
                                 "ORDER BY id")
         return [Run(r[0], r[1], r[2], tuple(json.loads(r[3])), r[4], r[5]) for r in rows]
 
-    def trend_rows(self, material: str, orientation: str | None = None) -> list:
+    def trend_rows(self, material: str, orientation: str | None = None, *, temperature_C: float | None = None,
+                   band_C: float = 0.0, rule_set: str | None = None) -> list:
         """Latest valid K_Ic of every specimen whose material contains ``material``.
+
+        Parameters
+        ----------
+        material : str
+            Text the material name contains (case-insensitive).
+        orientation : str, optional
+            Only this orientation code.
+        temperature_C, band_C : float, optional
+            Only specimens tested within ``temperature_C ± band_C``, °C.
+        rule_set : str, optional
+            Only reductions by this rule set (``e399``, ``iso12737``).
 
         Returns
         -------
         list of dict
             ``heat``, ``specimen``, ``K_Ic`` (MPa·m^½), ``orientation``,
             ``temperature_C``, ``material``, ``heat_first_reduced`` (ISO time),
-            oldest heat first.
+            ``rule_set``, oldest heat first.
         """
         sql = ("SELECT r.heat, r.specimen, r.K_Ic, r.orientation, r.temperature_C, r.material, "
-               "(SELECT min(created_at) FROM reductions f WHERE f.heat = r.heat) AS first "
-               "FROM reductions r WHERE r.valid = 1 AND r.K_Ic IS NOT NULL AND r.heat != '' "
+               "(SELECT min(created_at) FROM reductions f WHERE f.heat = r.heat) AS first, rs.name "
+               "FROM reductions r JOIN rule_sets rs ON rs.id = r.rule_set_id "
+               "WHERE r.valid = 1 AND r.K_Ic IS NOT NULL AND r.heat != '' "
                "AND instr(lower(coalesce(r.material, '')), lower(?)) > 0 "
                "AND r.version = (SELECT max(version) FROM reductions x WHERE x.heat = r.heat "
                "AND x.specimen = r.specimen)")
@@ -653,8 +784,15 @@ class Store:
         if orientation:
             sql += " AND upper(r.orientation) = upper(?)"
             args.append(orientation)
+        if temperature_C is not None:
+            sql += " AND r.temperature_C IS NOT NULL AND abs(r.temperature_C - ?) <= ?"
+            args += [float(temperature_C), float(band_C)]
+        if rule_set:
+            sql += " AND rs.name = ?"
+            args.append(rule_set)
         sql += " ORDER BY first, r.heat, r.specimen"
-        keys = ("heat", "specimen", "K_Ic", "orientation", "temperature_C", "material", "heat_first_reduced")
+        keys = ("heat", "specimen", "K_Ic", "orientation", "temperature_C", "material", "heat_first_reduced",
+                "rule_set")
         return [dict(zip(keys, r)) for r in self._db.execute(sql, args)]
 
 

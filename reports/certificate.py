@@ -30,12 +30,13 @@ import json
 import math
 import re
 import tomllib
+from contextlib import contextmanager
 from dataclasses import dataclass
 from datetime import date
 from pathlib import Path
 from xml.sax.saxutils import escape
 
-from reduce._version import __version__
+from reduce._version import PROGRAM_VERSION as __version__
 from reduce.atomic import atomic_path
 from reduce.errors import ReportError
 from reduce.sheet import safe_name
@@ -79,6 +80,9 @@ _CHECK_UNITS = {"ligament_size": "mm", "thickness_size": "mm", "crack_length_siz
 _VERDICT = {True: "pass", False: "fail", None: "not assessed"}
 #: Result.extra blocks with their own section; any other dict block gets a plain table
 _EXTRA_SHOWN = ("elastic_plastic",)
+#: the entries a lab profile may have (anything else is refused: a typo must not drop a line)
+PROFILE_KEYS = ("example", "name", "address", "accreditation", "contact", "certificate_prefix", "signatories")
+SIGNATORY_KEYS = ("name", "role")
 _DISPLACEMENT_WORDS = {"load_line": "load-line displacement", "cmod": "crack-mouth opening (CMOD)",
                        "front_face": "front-face opening"}
 
@@ -114,6 +118,7 @@ def load_lab_profile(path=None) -> dict:
         raise ReportError(f"{path}: the lab profile does not exist") from None
     except (OSError, tomllib.TOMLDecodeError) as exc:
         raise ReportError(f"{path}: the lab profile cannot be read: {exc}") from None
+    _refuse_unknown(path, "", data, PROFILE_KEYS)
 
     def need(key, kind=str):
         v = data.get(key)
@@ -131,6 +136,9 @@ def load_lab_profile(path=None) -> dict:
     if not re.fullmatch(r"[A-Za-z0-9-]+", prefix):
         raise ReportError(f"{path}: entry 'certificate_prefix' = {prefix!r}: use letters, digits and '-'")
     signatories = data.get("signatories", [])
+    for i, s in enumerate(signatories if isinstance(signatories, list) else [], start=1):
+        if isinstance(s, dict):
+            _refuse_unknown(path, f"[[signatories]] {i}: ", s, SIGNATORY_KEYS)
     if not isinstance(signatories, list) or not signatories or not all(
             isinstance(s, dict) and isinstance(s.get("name"), str) and isinstance(s.get("role"), str)
             for s in signatories):
@@ -141,13 +149,16 @@ def load_lab_profile(path=None) -> dict:
             "example": bool(data.get("example", False)), "path": str(path)}
 
 
-def certificate_number(prefix: str, heat: str, sheet_sha256: str) -> str:
-    """The certificate number: prefix, heat and the first 8 hex digits of the sheet's SHA-256.
+def _refuse_unknown(path, where: str, table: dict, known: tuple) -> None:
+    """A misspelt entry must not silently drop a line from the certificate."""
+    import difflib
 
-    >>> certificate_number("AMTL", "H-7A21", "3fa9c01d" + "0" * 56)
-    'AMTL-H-7A21-3FA9C01D'
-    """
-    return f"{prefix}-{safe_name(heat)}-{sheet_sha256[:8].upper()}"
+    for key in table:
+        if key not in known:
+            near = difflib.get_close_matches(key, known, n=1)
+            hint = f"did you mean '{near[0]}'? " if near else ""
+            raise ReportError(f"{path}: {where}unknown entry '{key}'; {hint}the entries are: "
+                              f"{', '.join(known)}")
 
 
 # ---------------------------------------------------------------- payload
@@ -179,7 +190,7 @@ def payload_digest(payload: dict) -> str:
 def certificate_payload(heat, results, rules: str, sheet_path, sheet_sha256: str, *,
                         number=None, revision=None, supersedes=None, draft=False,
                         approval=None, issue_date=None, lab_name=None,
-                        program_version=__version__) -> dict:
+                        program_version=__version__, certificate_path=None) -> dict:
     """The data embedded in the certificate.
 
     Parameters
@@ -193,6 +204,10 @@ def certificate_payload(heat, results, rules: str, sheet_path, sheet_sha256: str
         The test sheet and the SHA-256 of its bytes.
     number, revision, supersedes, draft, approval, issue_date, lab_name
         What the certificate says about itself.
+    certificate_path : str or Path, optional
+        Where the certificate is written: the sheet's place is kept relative
+        to its folder (``sheet.path``), never as a local absolute path, and
+        only when it is at most two folders up; otherwise only its name.
 
     Returns
     -------
@@ -217,11 +232,38 @@ def certificate_payload(heat, results, rules: str, sheet_path, sheet_sha256: str
                         "draft": bool(draft), "issue_date": issue_date, "heat": heat,
                         "approval": approval, "lab": lab_name},
         "rule_set": {"name": rules, "title": rule_set(rules)["title"]},
-        "sheet": {"name": Path(sheet_path).name, "path": str(sheet_path), "sha256": sheet_sha256},
+        "sheet": {"name": Path(sheet_path).name, "path": sheet_reference(sheet_path, certificate_path),
+                  "sha256": sheet_sha256},
         "records": [{"specimen": r.specimen, "record": r.record, "sha256": r.record_sha256}
                     for r in results],
         "results": [r.to_dict() for r in results],
     })
+
+
+def sheet_reference(sheet_path, certificate_path) -> str | None:
+    """The sheet's path relative to the certificate's folder, POSIX style, or None.
+
+    None when the certificate's place is not given, the two are on different
+    drives, or the path climbs more than two folders or has more than four
+    parts (such a path says more about the local disk than about the test).
+
+    >>> sheet_reference("/lab/c/campaign.csv", "/lab/c/certificates/X.pdf")
+    '../campaign.csv'
+    >>> sheet_reference("/home/u/a/b/c/s.csv", "/tmp/out/X.pdf") is None
+    True
+    """
+    import os
+
+    if certificate_path is None:
+        return None
+    try:
+        rel = os.path.relpath(Path(sheet_path).resolve(), Path(certificate_path).resolve().parent)
+    except ValueError:  # another drive
+        return None
+    parts = Path(rel).parts
+    if parts.count("..") > 2 or len(parts) > 4:
+        return None
+    return Path(rel).as_posix()
 
 
 def read_certificate_payload(pdf_path) -> tuple[dict, dict]:
@@ -234,7 +276,8 @@ def read_certificate_payload(pdf_path) -> tuple[dict, dict]:
     seen : dict
         ``digest_metadata`` (the digest in the document information, or
         None), ``digest_printed`` (the digest found in the page text, or
-        None), ``pages`` and ``text`` (the extracted text of all pages).
+        None), ``pages`` (the page count), ``page_texts`` (the extracted
+        text of each page) and ``text`` (all of it).
 
     Raises
     ------
@@ -245,14 +288,16 @@ def read_certificate_payload(pdf_path) -> tuple[dict, dict]:
     from pypdf.errors import PdfReadError
 
     try:
-        reader = PdfReader(str(pdf_path))
-        blobs = reader.attachments.get(ATTACHMENT_NAME)
-        text = "\n".join(p.extract_text() or "" for p in reader.pages)
-        meta = reader.metadata or {}
+        with _quiet_pypdf():  # its warnings on a broken file would come before our one clear message
+            reader = PdfReader(str(pdf_path))
+            blobs = reader.attachments.get(ATTACHMENT_NAME)
+            page_texts = [p.extract_text() or "" for p in reader.pages]
+            meta = reader.metadata or {}
     except FileNotFoundError:
         raise ReportError(f"{pdf_path}: the certificate does not exist") from None
-    except (PdfReadError, OSError, ValueError, KeyError) as exc:
+    except (PdfReadError, OSError, ValueError, KeyError, TypeError, AttributeError) as exc:
         raise ReportError(f"{pdf_path}: not a readable PDF ({exc})") from None
+    text = "\n".join(page_texts)
     if not blobs:
         raise ReportError(f"{pdf_path}: no embedded '{ATTACHMENT_NAME}'; this is not a cracktip "
                           "certificate, or its attachment was removed")
@@ -266,7 +311,149 @@ def read_certificate_payload(pdf_path) -> tuple[dict, dict]:
     m = re.search(r"Results digest \(SHA-256\):\s*((?:[0-9a-f]\s*){64})", text)
     return payload, {"digest_metadata": meta.get(DIGEST_KEY),
                      "digest_printed": re.sub(r"\s", "", m.group(1)) if m else None,
-                     "pages": len(reader.pages), "text": text}
+                     "pages": len(page_texts), "page_texts": page_texts, "text": text}
+
+
+@contextmanager
+def _quiet_pypdf():
+    """pypdf's logger held at ERROR for the duration (its level restored after)."""
+    import logging
+
+    log = logging.getLogger("pypdf")
+    level = log.level
+    log.setLevel(logging.ERROR)
+    try:
+        yield
+    finally:
+        log.setLevel(level)
+
+
+# ---------------------------------------------------------------- the printed pages against the payload
+
+_RESULT_COLUMNS = ("B", "B_N", "W", "S", "a", "a/W", "yield strength", "P_max", "P_Q", "P_max/P_Q", "K_Q",
+                   "valid", "K_Ic")
+
+
+def _flat(text: str) -> str:
+    """The text without any whitespace: line breaks fall wherever the layout put them."""
+    return re.sub(r"\s+", "", text)
+
+
+def _readable(markup: str) -> str:
+    """Reportlab markup as the page reads: tags dropped, entities resolved."""
+    from xml.sax.saxutils import unescape
+
+    return " ".join(unescape(re.sub(r"<[^>]+>", "", markup)).split())
+
+
+def _flat_markup(markup: str) -> str:
+    return _flat(_readable(markup))
+
+
+def printed_mismatches(payload: dict, page_texts: list[str]) -> list[str]:
+    """Where the printed pages do not say what the embedded results say.
+
+    Compared with the payload: "page n of N" on every page (N the real
+    page count), the certificate number and revision (or DRAFT) and the
+    date on every page, the identification box, the results table row of
+    each specimen (every printed cell: K_Q, valid, K_Ic …), each specimen's
+    pages (heading, verdict, K_Q of the construction, record SHA-256), the
+    traceability table and the sheet's SHA-256.
+
+    Parameters
+    ----------
+    payload : dict
+        The embedded results (:func:`read_certificate_payload`).
+    page_texts : list of str
+        The extracted text of each page, in order.
+
+    Returns
+    -------
+    list of str
+        One finding per disagreement; empty when the pages agree.
+    """
+    cert = payload.get("certificate") or {}
+    draft = bool(cert.get("draft"))
+    results = [d for d in payload.get("results") or [] if isinstance(d, dict)]
+    reduced = [d for d in results if d.get("error") is None and d.get("specimen_data")]
+    flat = [_flat(t) for t in page_texts]
+    whole = "".join(flat)
+    out = _page_mismatches(page_texts, flat, cert, draft)
+    first = flat[0] if flat else ""
+    box = [("the revision", f"Revision{cert.get('revision')}") if cert.get("revision") is not None else None,
+           ("the date", _flat(f"{date_label(draft)}{cert.get('issue_date')}")),
+           ("the number of specimens", _flat(f"Specimens {len(results)} ({len(reduced)} reduced, "
+                                             f"{len(results) - len(reduced)} not reduced)"))]
+    out += [f"page 1 does not state {what} as embedded ({want})" for what, want in filter(None, box)
+            if want not in first]
+    for d in reduced:
+        out += _results_row_mismatches(d, page_texts, whole)
+        out += _specimen_page_mismatches(d, flat)
+    sheet = payload.get("sheet") or {}
+    trace = [(str(d.get("specimen")), d.get("record") or "—", d.get("record_sha256") or "not read")
+             for d in results] + [("Test sheet", sheet.get("name") or "", sheet.get("sha256") or "")]
+    for who, record, sha in trace:
+        if _flat(who + record + sha) not in whole:
+            out.append(f"the traceability table does not list {who}: {record}, SHA-256 {sha}")
+    return out
+
+
+def _page_mismatches(page_texts, flat, cert, draft) -> list[str]:
+    n = len(page_texts)
+    header = header_text(draft, cert.get("number"), cert.get("revision"))
+    dated = f"{'drafted' if draft else 'issued'} {cert.get('issue_date')}"
+    out = []
+    for i, (text, f) in enumerate(zip(page_texts, flat), start=1):
+        said = re.findall(r"page\s+(\d+)\s+of\s+(\d+)", text)
+        if said != [(str(i), str(n))]:
+            what = ", ".join(f"'page {a} of {b}'" for a, b in said) or "no page number"
+            out.append(f"page {i} of the {n} in the file says {what}")
+        if _flat(header) not in f:
+            out.append(f"page {i} does not carry '{header}'")
+        if _flat(dated) not in f:
+            out.append(f"page {i} does not carry '{dated}'")
+    return out
+
+
+def _results_row_mismatches(d, page_texts, whole) -> list[str]:
+    cells = results_cells(d)
+    if _flat("".join(cells)) in whole:
+        return []
+    sid = cells[0]
+    # which cells differ: the extracted text has one table cell per line
+    tokens = page_texts[0].split() if page_texts else []
+    if sid in tokens:
+        i = tokens.index(sid)
+        got = tokens[i + 1:i + len(cells)]
+        diffs = [f"{name} printed {g}, embedded {w}" for name, g, w in zip(_RESULT_COLUMNS, got, cells[1:])
+                 if g != w]
+        if diffs:
+            return [f"results table, {sid}: " + "; ".join(diffs)]
+    return [f"results table: no row for {sid} reads as the embedded results "
+            f"(K_Q {cells[11]}, valid {cells[12]}, K_Ic {cells[13]})"]
+
+
+def _specimen_page_mismatches(d, flat) -> list[str]:
+    sid = str(d.get("specimen"))
+    heading = _flat(f"Specimen {sid} {d.get('geometry') or ''}")
+    pages = [i for i, f in enumerate(flat) if heading in f]
+    if not pages:
+        return [f"no specimen page for {sid}"]
+    page, i = flat[pages[0]], pages[0] + 1
+    out = []
+    verdict = verdict_markup(d)
+    if _flat_markup(verdict) not in page:
+        out.append(f"page {i}, {sid}: the verdict does not read '{_readable(verdict)}' as embedded")
+    K = (f"K<sub>Q</sub>{_f(d.get('K_Q_MPa_sqrt_m'), 2)} MPa·√m "
+         f"({_f(d.get('K_Q_ksi_sqrt_in'), 2)} ksi·√in)")
+    if _flat_markup(K) not in page:
+        out.append(f"page {i}, {sid}: the construction does not give K_Q = "
+                   f"{_f(d.get('K_Q_MPa_sqrt_m'), 2)} MPa·√m as embedded")
+    if _flat(f"Record {d.get('record')}, SHA-256 {d.get('record_sha256')}") not in page:
+        out.append(f"page {i}, {sid}: the record or its SHA-256 differs from the embedded one")
+    if not any(_flat(f"Specimen {sid} (continued)") in f for f in flat):
+        out.append(f"no continuation page (checks) for {sid}")
+    return out
 
 
 # ---------------------------------------------------------------- formatting
@@ -277,13 +464,56 @@ def _f(x, nd=2, none="—"):
     return f"{x:.{nd}f}"
 
 
-def _g(x, sig=4):
-    if x is None:
+_SUPERSCRIPT = str.maketrans("-0123456789", "⁻⁰¹²³⁴⁵⁶⁷⁸⁹")
+
+
+def significant(x, sig: int = 4) -> str:
+    """``x`` to ``sig`` significant digits; powers of ten below 10⁻⁴ or from 10⁵ up.
+
+    The same number of significant digits whatever the magnitude, so a
+    check table does not mix 0.5485 with 0.000008639.
+
+    >>> [significant(v) for v in (0.54851, 24.8667, 0.00011994, 8.6391e-6, 123456.0, 9.99996, 0.0)]
+    ['0.5485', '24.87', '0.0001199', '8.639 × 10⁻⁶', '1.235 × 10⁵', '10.00', '0']
+    """
+    if x is None or (isinstance(x, float) and not math.isfinite(x)):
         return "—"
     if x == 0:
         return "0"
-    nd = max(0, sig - 1 - int(math.floor(math.log10(abs(x)))))
-    return f"{x:.{nd}f}"
+    mantissa, exp = f"{x:.{sig - 1}e}".split("e")
+    e = int(exp)  # of the rounded value: 9.99996 is 10.00, not 9.1000
+    if -4 <= e < 5:
+        return f"{x:.{max(0, sig - 1 - e)}f}"
+    return f"{mantissa} × 10{str(e).translate(_SUPERSCRIPT)}"
+
+
+def check_unit(name: str, limit: str = "") -> str:
+    """The unit of a check's value: ``mm``, ``MPa·√m/s``, or ``ratio`` (dimensionless).
+
+    >>> check_unit("ligament_size"), check_unit("a_over_W"), check_unit("crack_front", "... = 1.2 mm")
+    ('mm', 'ratio', 'mm')
+    """
+    if name in _CHECK_UNITS:
+        return _CHECK_UNITS[name]
+    if name.endswith("_size") or (name == "crack_front" and limit.rstrip().endswith("mm")):
+        return "mm"  # size checks compare lengths; the nine-point front a deviation in mm
+    return "" if name == "calibration_confirmed" else "ratio"
+
+
+def date_label(draft: bool) -> str:
+    """What the certificate's date is called: a draft is drafted, not issued."""
+    return "Drafted" if draft else "Date of issue"
+
+
+def header_text(draft: bool, number, revision) -> str:
+    """The identification at the top right of every page.
+
+    >>> header_text(False, "AMTL-H-1-0A", 2), header_text(True, None, None)
+    ('Certificate No. AMTL-H-1-0A, revision 2', 'DRAFT — no certificate number')
+    """
+    if draft:
+        return "DRAFT — no certificate number"
+    return f"Certificate No. {number}" + (f", revision {revision}" if revision is not None else "")
 
 
 def _e(text) -> str:
@@ -301,7 +531,7 @@ _SYMBOLS = {
     "delta_u": "δ<sub>u</sub>", "delta": "δ", "b0": "b<sub>0</sub>", "a0": "a<sub>0</sub>",
     "r_p": "r<sub>p</sub>", "eta": "η", "nu": "ν", "sigma_YS": "σ<sub>YS</sub>", "sigma_ys": "σ<sub>YS</sub>",
     "sigma_Y": "σ<sub>Y</sub>", "sigma_TS": "σ<sub>TS</sub>", "a_compliance": "a<sub>compliance</sub>",
-    "yield": "σ<sub>YS</sub>",
+    "yield": "σ<sub>YS</sub>", "B_N": "B<sub>N</sub>",
 }
 _SYMBOL_RE = re.compile(r"(?<![A-Za-z0-9_])(" + "|".join(
     re.escape(k) for k in sorted(_SYMBOLS, key=len, reverse=True)) + r")(?![A-Za-z0-9_])")
@@ -343,6 +573,74 @@ def check_title(name: str) -> str:
     """
     words = name.replace("_", " ")
     return CHECK_TITLES.get(name) or _e(words[:1].upper() + words[1:])
+
+
+def results_cells(d: dict) -> list[str]:
+    """The results-table row of one reduced specimen, as printed.
+
+    Parameters
+    ----------
+    d : dict
+        A result as :meth:`Result.to_dict` gives it (or as embedded).
+    """
+    sd = d.get("specimen_data") or {}
+    return [str(d.get("specimen")), _f(sd.get("B_mm")), _f(sd.get("B_N_mm")), _f(sd.get("W_mm")),
+            _f(sd.get("S_mm")), _f(d.get("a_mm")), _f(d.get("a_over_W"), 3), _f(sd.get("yield_MPa"), 0),
+            _f(d.get("P_max_kN")), _f(d.get("P_Q_kN")), _f(d.get("P_max_over_P_Q"), 3),
+            _f(d.get("K_Q_MPa_sqrt_m"), 1), "yes" if d.get("valid") else "no", _f(d.get("K_Ic_MPa_sqrt_m"), 1)]
+
+
+def verdict_markup(d: dict) -> str:
+    """The specimen page's verdict, without the reasons (reportlab markup)."""
+    K_Q = _f(d.get("K_Q_MPa_sqrt_m"), 1)
+    if d.get("valid"):
+        return f"K<sub>Q</sub> = {K_Q} MPa·√m qualifies: K<sub>Ic</sub> = {_f(d.get('K_Ic_MPa_sqrt_m'), 1)} MPa·√m"
+    return f"K<sub>Q</sub> = {K_Q} MPa·√m does not qualify as K<sub>Ic</sub>"
+
+
+def _given(x, unit="", none="not given"):
+    """A sheet value as entered (``:g`` keeps what was typed, 71.7 not 71.70)."""
+    return none if x is None else f"{x:g}{unit}"
+
+
+def specimen_inputs(d: dict) -> list[tuple[str, str]]:
+    """(label, value) of every input a reviewer needs to re-check one specimen's numbers.
+
+    Dimensions, moduli and strengths as the reduction used them (sheet
+    values converted to mm and MPa); what was assumed says so.
+
+    >>> d = {"displacement_type": "load_line", "specimen_data": {"E_MPa": 71700.0, "yield_MPa": 420.0,
+    ...      "tensile_MPa": None, "precrack_Kmax_MPa_sqrt_m": 16.2, "B_mm": 25.0, "W_mm": 50.0}}
+    >>> dict(specimen_inputs(d))["E"], dict(specimen_inputs(d))["sigma_TS"]
+    ('71.7 GPa', 'not given: sigma_Y = sigma_YS used')
+    """
+    sd = d.get("specimen_data") or {}
+    ep = d.get("elastic_plastic") if isinstance(d.get("elastic_plastic"), dict) else {}
+    dims = sd.get("dims_mm") or {}
+    E = sd.get("E_MPa")
+    if ep.get("poisson") is not None:
+        nu = f"{ep['poisson']:g} ({'assumed: not given' if ep.get('poisson_assumed') else 'given'})"
+    else:
+        nu = _given(sd.get("poisson"))
+    z = dims.get("z")
+    out = [("B", _given(sd.get("B_mm"), " mm")), ("B_N", _given(sd.get("B_N_mm"), " mm", "none (no side grooves)")),
+           ("W", _given(sd.get("W_mm"), " mm"))]
+    if sd.get("S_mm") is not None:
+        out.append(("S", _given(sd["S_mm"], " mm")))
+    out += [(k, _given(v, " mm")) for k, v in dims.items() if k != "z"]
+    out += [("E", "not given" if E is None else f"{E / 1000:g} GPa"),
+            ("sigma_YS", _given(sd.get("yield_MPa"), " MPa")),
+            ("sigma_TS", _given(sd.get("tensile_MPa"), " MPa", "not given: sigma_Y = sigma_YS used")),
+            ("nu", nu),
+            ("Precrack K_max", _given(sd.get("precrack_Kmax_MPa_sqrt_m"), " MPa·√m")),
+            ("Knife-edge z", _given(z, " mm", "not given: 0 used for the CTOD")),
+            ("Displacement", _DISPLACEMENT_WORDS.get(d.get("displacement_type"), str(d.get("displacement_type")))
+             + ("" if sd.get("displacement_type") else " (the geometry's default)"))]
+    if ep.get("sigma_Y_MPa") is not None:
+        out.append(("sigma_Y (for J, CTOD)", f"{significant(ep['sigma_Y_MPa'])} MPa"))
+    if sd.get("temperature_C") is not None:
+        out.append(("Test temperature", f"{sd['temperature_C']:g} °C"))
+    return out
 
 
 def _common(values, unit="", nd=None):
@@ -491,7 +789,8 @@ class _Doc:
                Paragraph(f"Plane-strain fracture toughness K<sub>Ic</sub> / K<sub>Q</sub> — "
                          f"{_e(self.rule_title)}", st.sub)]
         lab = self.lab
-        left = [f"<b>Issued by</b><br/>{_e(lab['name'])}"] + [_e(a) for a in lab["address"]]
+        left = [f"<b>{'Prepared by' if o['draft'] else 'Issued by'}</b><br/>{_e(lab['name'])}"] + \
+            [_e(a) for a in lab["address"]]
         if lab.get("accreditation"):
             left.append(f"<i>{_e(lab['accreditation'])}</i>")
         if lab.get("contact"):
@@ -502,7 +801,7 @@ class _Doc:
             right.append(("Revision", _e(o["revision"])))
         if o.get("supersedes"):
             right.append(("Supersedes", _e(o["supersedes"])))
-        right += [("Date of issue", _e(o["issue_date"])),
+        right += [(date_label(o["draft"]), _e(o["issue_date"])),
                   ("Status", "DRAFT — not valid as a certificate" if o["draft"] else "issued")]
         if o.get("approval"):
             a = o["approval"]
@@ -559,12 +858,8 @@ class _Doc:
                  "K<sub>Ic</sub><br/>MPa√m"]
         data = [[Paragraph(h, st.head if i else st.head_l) for i, h in enumerate(heads)]]
         for r, _, _ in self.ok:
-            d = r.specimen_data
-            data.append([Paragraph(_e(r.specimen), st.cell), _f(d.get("B_mm")), _f(d.get("B_N_mm")),
-                         _f(d.get("W_mm")), _f(d.get("S_mm")), _f(r.a_mm), _f(r.a_over_W, 3),
-                         _f(d.get("yield_MPa"), 0), _f(r.P_max_kN), _f(r.P_Q_kN), _f(r.P_max_over_P_Q, 3),
-                         _f(r.K_Q_MPa_sqrt_m, 1), "yes" if r.valid else "no",
-                         _f(r.K_Ic_MPa_sqrt_m, 1)])
+            cells = results_cells(r.to_dict())
+            data.append([Paragraph(_e(cells[0]), st.cell)] + cells[1:])
         w = [19 * mm] + [11.2 * mm] * 10 + [13.6 * mm, 9.8 * mm, 13.6 * mm]
         extra = [("ALIGN", (12, 1), (12, -1), "CENTER"), ("FONT", (13, 1), (13, -1), "CT-Sans-Bold", 7.2)]
         for i, (r, _, _) in enumerate(self.ok, start=1):
@@ -598,22 +893,27 @@ class _Doc:
                (ep.get("J_kJ_per_m2") is not None or ep.get("CTOD_mm") is not None)]
         if not eps:
             return []
-        yn = lambda v: "—" if v is None else ("yes" if v else "no")  # noqa: E731
-        heads = ["Specimen", "Point of the record", "J<br/>kJ/m²", "J<br/>qualifies", "K<sub>J</sub><br/>MPa√m",
-                 "K<sub>J</sub><br/>qualifies", "CTOD<br/>mm", "CTOD<br/>qualifies"]
+        def passed(ep, q):
+            # reduce/elastic_plastic.py: verdicts[q]["passed"] is True, False or None (not assessed)
+            v = ((ep.get("verdicts") or {}).get(q) or {}).get("passed", ep.get(f"{q}_valid"))
+            return "not assessed" if v is None else ("yes" if v else "no")
+
+        heads = ["Specimen", "Event", "J<br/>kJ/m²", "J size<br/>check passed", "K<sub>J</sub><br/>MPa√m",
+                 "K<sub>J</sub> size<br/>check passed", "CTOD<br/>mm", "CTOD size<br/>check passed"]
         data = [[Paragraph(h, st.head if i > 1 else st.head_l) for i, h in enumerate(heads)]]
         for r, ep in eps:
-            point = {"P_max": "first attainment of P<sub>max</sub>",
-                     "instability": "instability (end of record)"}.get(ep.get("point"), _e(ep.get("point") or "—"))
-            data.append([Paragraph(_e(r.specimen), st.cell), Paragraph(point, st.cell),
-                         _f(ep.get("J_kJ_per_m2"), 1), yn(ep.get("J_valid")), _f(ep.get("K_J_MPa_sqrt_m"), 1),
-                         yn(ep.get("K_J_valid")), _f(ep.get("CTOD_mm"), 4), yn(ep.get("CTOD_valid"))])
+            event = ep.get("event") or {"P_max": "first attainment of P_max",
+                                        "instability": "instability (end of record)"}.get(ep.get("point"))
+            data.append([Paragraph(_e(r.specimen), st.cell), Paragraph(_words(event or "—"), st.cell),
+                         _f(ep.get("J_kJ_per_m2"), 1), Paragraph(passed(ep, "J"), st.cell_c),
+                         _f(ep.get("K_J_MPa_sqrt_m"), 1), Paragraph(passed(ep, "K_J"), st.cell_c),
+                         _f(ep.get("CTOD_mm"), 4), Paragraph(passed(ep, "CTOD"), st.cell_c)])
         return [Paragraph("Elastic–plastic results", st.h3),
                 _table(data, [19 * mm, 45 * mm, 18 * mm, 18 * mm, 19 * mm, 18 * mm, 19 * mm, 18 * mm],
                        align_right_from=2, extra=[("ALIGN", (c, 1), (c, -1), "CENTER") for c in (3, 5, 7)]),
-                Paragraph("Computed from the same records; size rules of ASTM E1820 (J), ASTM E1921 "
-                          "(K<sub>J</sub>) and ISO 12135 (CTOD) as stated on each specimen page. They are "
-                          "not K<sub>Ic</sub>.", st.small)]
+                Paragraph("Computed from the same records; the rules applied (ASTM E1820 for J, ASTM E1921 "
+                          "for K<sub>J</sub>, ISO 12135 for CTOD) and what was not assessed are stated on each "
+                          "specimen page. They are not K<sub>Ic</sub>.", st.small)]
 
     def caveats(self):
         """Caveats of the geometry definitions and failed advisory checks, per specimen."""
@@ -747,6 +1047,7 @@ class _Doc:
         out += [self._verdict(r)]
         out += [Paragraph("Construction", st.h3), self._construction(r)]
         out += [Paragraph("Crack-front readings", st.h3), self._front(r)]
+        out += [Paragraph("Inputs used (from the test sheet unless marked)", st.h3), self._inputs(r)]
         # the second page of a specimen: its checks and everything else said about it
         out += [PageBreak(), Paragraph(f"Specimen {_e(r.specimen)} (continued)", st.h2)]
         out += [Paragraph("Validity checks", st.h3), self._checks(r),
@@ -801,19 +1102,20 @@ class _Doc:
         from reportlab.platypus import Paragraph
 
         st = self.st
-        rows = [[Paragraph(h, st.head_l) for h in ("Check", "Value", "Requirement", "Result", "Clause / note")]]
-        extra = []
-        for i, c in enumerate(r.checks, start=1):
-            unit = _CHECK_UNITS.get(c.name, "")
-            value = "—" if c.value is None else f"{_g(c.value)} {unit}".strip()
-            note = _words(_clause(c.clause)) + (f"<br/><i>{_words(c.note)}</i>" if c.note else "")
-            mark = " *" if c.name in self.core else " †" if c.name in self.advisory else ""
+        rows = [[Paragraph(h, st.head_l) for h in ("Check", "Value", "Unit", "Requirement", "Result",
+                                                     "Clause / note")]]
+        for c in r.checks:
+            # a no-break space keeps the mark with the last word of the title
+            mark = "\u00a0*" if c.name in self.core else "\u00a0†" if c.name in self.advisory else ""
             colour = {True: "#1d5e2a", False: "#8a1c1c", None: "#7a5a00"}[c.passed]
-            rows.append([Paragraph(check_title(c.name) + mark, st.cell), Paragraph(_e(value), st.cell_r),
+            note = _words(_clause(c.clause)) + (f"<br/><i>{_words(c.note)}</i>" if c.note else "")
+            unit = check_unit(c.name, c.limit) if c.value is not None else ""
+            rows.append([Paragraph(check_title(c.name) + mark, st.cell),
+                         Paragraph(_e(significant(c.value)), st.cell_r), Paragraph(_e(unit), st.cell_s),
                          Paragraph(_words(c.limit), st.cell_s),
                          Paragraph(f"<font color='{colour}'><b>{_VERDICT[c.passed]}</b></font>", st.cell),
                          Paragraph(note, st.cell_s)])
-        return _table(rows, [33 * mm, 23 * mm, 45 * mm, 16 * mm, 57 * mm], extra=extra)
+        return _table(rows, [33 * mm, 19 * mm, 16 * mm, 42 * mm, 14 * mm, 50 * mm])
 
     def _front(self, r):
         from reportlab.lib.units import mm
@@ -843,7 +1145,7 @@ class _Doc:
             items = [(k, v) for k, v in block.items() if isinstance(v, (int, float, str, bool)) or v is None]
             if not items:
                 continue
-            pairs = [(_e(k), _e(_g(v) if isinstance(v, float) else v)) for k, v in items]
+            pairs = [(_e(k), _e(significant(v) if isinstance(v, float) else v)) for k, v in items]
             out += [Paragraph(_e(key.replace("_", " ").capitalize()), self.st.h3),
                     _kv_table(pairs, [35 * mm, 52 * mm, 35 * mm, 52 * mm], self.st)]
         return out
@@ -851,12 +1153,18 @@ class _Doc:
     def _verdict(self, r):
         from reportlab.platypus import Paragraph
 
-        st = self.st
+        d = r.to_dict()
         if r.valid:
-            return Paragraph(f"K<sub>Q</sub> = {_f(r.K_Q_MPa_sqrt_m, 1)} MPa·√m qualifies: "
-                             f"K<sub>Ic</sub> = {_f(r.K_Ic_MPa_sqrt_m, 1)} MPa·√m.", st.verdict_ok)
-        return Paragraph(f"K<sub>Q</sub> = {_f(r.K_Q_MPa_sqrt_m, 1)} MPa·√m does not qualify as "
-                         f"K<sub>Ic</sub>: " + "; ".join(_words(x) for x in r.reasons) + ".", st.verdict_no)
+            return Paragraph(verdict_markup(d) + ".", self.st.verdict_ok)
+        return Paragraph(verdict_markup(d) + ": " + "; ".join(_words(x) for x in r.reasons) + ".",
+                         self.st.verdict_no)
+
+    def _inputs(self, r):
+        """Every input a reviewer needs to redo the numbers, as the reduction used it."""
+        from reportlab.lib.units import mm
+
+        pairs = [(_words(label), _words(value)) for label, value in specimen_inputs(r.to_dict())]
+        return _kv_table(pairs, [34 * mm, 53 * mm, 34 * mm, 53 * mm], self.st)
 
     def story(self):
         from reportlab.platypus import PageBreak
@@ -890,10 +1198,8 @@ def _page_decor(opts, lab, heat):
         canv.setFont("CT-Sans-Bold", 9)
         canv.drawString(18 * mm, H - 14 * mm, lab["name"])
         canv.setFont("CT-Sans", 8)
-        right = ("DRAFT — no certificate number" if opts["draft"]
-                 else f"Certificate No. {opts['number']}"
-                 + (f", revision {opts['revision']}" if opts.get("revision") is not None else ""))
-        canv.drawRightString(W - 18 * mm, H - 14 * mm, right)
+        canv.drawRightString(W - 18 * mm, H - 14 * mm, header_text(opts["draft"], opts["number"],
+                                                                     opts.get("revision")))
         canv.drawRightString(W - 18 * mm, H - 18 * mm, f"Heat {heat} — fracture-toughness test")
         canv.setStrokeColor(HexColor("#1b3a5c"))
         canv.setLineWidth(0.6)
@@ -902,7 +1208,7 @@ def _page_decor(opts, lab, heat):
         canv.setFont("CT-Sans", 7)
         canv.setFillColor(HexColor("#444444"))
         canv.drawString(18 * mm, 11 * mm, f"cracktip {opts['program_version']} · rule set {opts['rules']} · "
-                                          f"issued {opts['issue_date']}")
+                                          f"{'drafted' if opts['draft'] else 'issued'} {opts['issue_date']}")
         canv.restoreState()
 
     return draw
@@ -969,7 +1275,8 @@ def build_certificate(path, heat, rows, lab: dict, rules: str, sheet_path, sheet
     include_failed : bool
         Issue although rows failed to reduce; they are then listed.
     issue_date : str, optional
-        ISO date printed as the date of issue; default today.
+        ISO date printed as the date of issue (a draft's: "Drafted"); default
+        today.  The caller checks it (``cracktip certify --date``).
 
     Returns
     -------
@@ -1009,7 +1316,8 @@ def build_certificate(path, heat, rows, lab: dict, rules: str, sheet_path, sheet
     results = [r for r, _, _ in rows]
     payload = certificate_payload(heat, results, rules, sheet_path, sheet_sha256, number=certificate_number,
                                   revision=revision, supersedes=supersedes, draft=draft, approval=approval,
-                                  issue_date=issue_date, lab_name=lab["name"], program_version=program_version)
+                                  issue_date=issue_date, lab_name=lab["name"], program_version=program_version,
+                                  certificate_path=path)
     digest = payload_digest(payload)
     opts = {"draft": draft, "number": certificate_number, "revision": revision, "supersedes": supersedes,
             "approval": approval, "issue_date": issue_date, "program_version": program_version, "rules": rules}

@@ -12,7 +12,8 @@ WIDTH = 100
 
 
 def _wrap(text, indent, width=WIDTH) -> list:
-    return textwrap.wrap(text, width, initial_indent=indent, subsequent_indent=indent + "  ") or [indent]
+    return textwrap.wrap(text, width, initial_indent=indent, subsequent_indent=indent + "  ",
+                         break_on_hyphens=False) or [indent]
 
 
 def _k(x) -> str:
@@ -21,7 +22,12 @@ def _k(x) -> str:
 
 def _version(stored, specimen) -> str:
     r = stored.get(specimen)
-    return f"v{r.version} #{r.id}" if r else ""
+    return f"v{r.version} (#{r.id})" if r else ""
+
+
+#: what the "reduction" column of the verdict table means
+REDUCTION_COLUMN_NOTE = ("reduction: the version of the specimen's reduction in the store and its id "
+                         "(#); `cracktip history SPECIMEN` lists every version")
 
 
 def verdict_table(verdicts, spec, stored: dict, without_heat=()) -> str:
@@ -40,10 +46,10 @@ def verdict_table(verdicts, spec, stored: dict, without_heat=()) -> str:
     for v in verdicts:
         lines.append(f"{v.heat}: {v.verdict.upper()}")
         lines.extend(_wrap(v.reason, "  "))
-        lines.append(f"  {'specimen':<12} {'version':<9} {'role':<16} {'K MPa√m':>8}  note")
+        lines.append(f"  {'specimen':<12} {'reduction':<10} {'role':<16} {'K MPa√m':>8}  note")
         for s in v.specimens:
             value = f"{_k(s.value)} {s.kind}" if s.value is not None else ""
-            head = f"  {s.specimen[:12]:<12} {_version(stored, s.specimen):<9} {s.role:<16} {value:>8}  "
+            head = f"  {s.specimen[:12]:<12} {_version(stored, s.specimen):<10} {s.role:<16} {value:>8}  "
             note = textwrap.wrap(s.note, max(30, WIDTH - len(head))) or [""]
             lines.append((head + note[0]).rstrip())
             lines.extend(" " * len(head) + n for n in note[1:])
@@ -54,6 +60,8 @@ def verdict_table(verdicts, spec, stored: dict, without_heat=()) -> str:
     for v in verdicts:
         counts[v.verdict] = counts.get(v.verdict, 0) + 1
     lines.append(f"{len(verdicts)} heat(s): " + ", ".join(f"{n} {k}" for k, n in counts.items()) + ".")
+    if stored:
+        lines.extend(_wrap(REDUCTION_COLUMN_NOTE, ""))
     lines.extend(textwrap.wrap("CAUTION: " + CAUTION + " A verdict is advice to QA staff, not an "
                                "approval; the customer's specification rules.", WIDTH))
     return "\n".join(lines)
@@ -187,18 +195,24 @@ def history_text(what, events, runs: dict, latest: dict, reductions: dict, db) -
 
 
 def trend_text(data: dict, title: str) -> str:
-    """The numbers behind the trend plot."""
+    """The numbers behind the trend plot, with the warnings a reader needs."""
     b = data["bound"]
     lines = [title, f"  {'heat':<12} {'first reduced':<26} {'n':>3} {'min':>7} {'mean':>7}  (K_Ic MPa·m^½)"]
     for heat, first, vs in data["heats"]:
         flag = "  BELOW THE BOUND" if heat in data["flagged"] else ""
         lines.append(f"  {heat[:12]:<12} {first:<26} {len(vs):>3} {min(vs):>7.1f} {sum(vs) / len(vs):>7.1f}{flag}")
-    lines.append(f"all {b.n} results: mean {b.mean:.1f}, s {b.sd:.2f}, k {b.k:.3f} "
-                 f"({b.content:.0%} content, {b.confidence:.0%} confidence, normal model, exact noncentral t); "
-                 f"lower tolerance bound {b.lower:.1f} MPa·m^½")
+    sample = f"{b.n} heat means" if data.get("per_heat_mean") else f"all {b.n} results"
+    lines.extend(_wrap(f"{sample}: mean {b.mean:.1f}, s {b.sd:.2f}, k {b.k:.3f} ({b.content:.0%} content, "
+                       f"{b.confidence:.0%} confidence, normal model, exact noncentral t); lower tolerance "
+                       f"bound {b.lower:.1f} MPa·m^½", ""))
     if len(data["groups"]) > 1:
         shown = ", ".join(f"{o or '?'} at {'?' if t is None else f'{t:g}'} °C" for o, t in data["groups"])
-        lines.extend(_wrap(f"note: the selection mixes {shown}; narrow it with --orientation for a "
-                           "meaningful bound", ""))
+        lines.extend(_wrap(f"WARNING: the selection mixes {shown}; narrow it with --orientation and "
+                           "--temperature for a meaningful bound", ""))
+    if len(data.get("rule_sets") or ()) > 1:
+        lines.extend(_wrap(f"WARNING: the selection mixes the rule sets {', '.join(data['rule_sets'])}; "
+                           "narrow it with --rules", ""))
+    for w in data.get("warnings") or ():
+        lines.extend(_wrap(f"WARNING: {w}", ""))
     lines.append("heats below the bound: " + (", ".join(data["flagged"]) or "none"))
     return "\n".join(lines)

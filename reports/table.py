@@ -5,8 +5,8 @@ from __future__ import annotations
 import textwrap
 
 CAUTION = ("Results are for qualified personnel. The governing test standard, the customer's "
-           "specification, local codes and accredited practice rule. A K_Q that does not "
-           "qualify is not K_Ic and must not be used as K_Ic.")
+           "specification, local codes and accredited practice rule over these results. A K_Q "
+           "that does not qualify is not K_Ic and must not be used as K_Ic.")
 
 _COLUMNS = (  # header, width, formatter
     ("specimen", 12, lambda r: r.specimen),

@@ -1,11 +1,13 @@
 """The results workbook (Excel, written with openpyxl).
 
-Sheets: ``Results`` (one row per specimen), ``Checks`` (one row per check),
-and one sheet per reduced specimen with its origin-corrected record and,
-beside it, what the record is (file, SHA-256, the origin offset subtracted,
-the construction's loads).  Units are in the headers, the header row is
-frozen, numbers carry number formats, long texts wrap.  Values that are not
-finite are left empty (Excel has no NaN).  The file is written atomically.
+Sheets: ``Results`` (one row per specimen), ``Checks`` (one row per check,
+with its unit), ``Records`` (one row per record sheet: which specimen, the
+file, its SHA-256, the origin offset subtracted, the construction's loads,
+the samples written) and one sheet per reduced specimen with nothing but its
+origin-corrected record, so ``pandas.read_excel`` returns clean columns.
+Units are in the headers, the header row is frozen, numbers carry number
+formats, long texts wrap.  Values that are not finite are left empty (Excel
+has no NaN).  The file is written atomically.
 """
 
 from __future__ import annotations
@@ -35,12 +37,12 @@ RESULT_COLUMNS = [
     # elastic-plastic group (reduce/elastic_plastic.py)
     ("EP point", ("elastic_plastic", "point"), None),
     ("J (kJ/m²)", ("elastic_plastic", "J_kJ_per_m2"), "0.0"),
-    ("J qualifies (E1820 size)", ("elastic_plastic", "J_valid"), None),
+    ("J size check passed (E1820)", ("elastic_plastic", "verdicts", "J", "passed"), None),
     ("K_J (MPa·m^½)", ("elastic_plastic", "K_J_MPa_sqrt_m"), "0.0"),
-    ("K_J qualifies (E1921 size)", ("elastic_plastic", "K_J_valid"), None),
+    ("K_J size check passed (E1921)", ("elastic_plastic", "verdicts", "K_J", "passed"), None),
     ("CTOD (mm)", ("elastic_plastic", "CTOD_mm"), "0.0000"),
-    ("CTOD qualifies", ("elastic_plastic", "CTOD_valid"), None),
-    ("EP valid", ("elastic_plastic", "valid"), None),
+    ("CTOD size check passed", ("elastic_plastic", "verdicts", "CTOD", "passed"), None),
+    ("EP checks all passed", ("elastic_plastic", "valid"), None),
     ("Reasons", "reasons", None), ("Caveats", "caveats", None), ("Warnings", "warnings", None),
     ("Record", "record", None), ("Record SHA-256", "record_sha256", None), ("Error", "error", None),
 ]
@@ -61,16 +63,40 @@ def _cell(v):
     return v
 
 
+#: verdict columns, where an empty cell would hide that the check was not assessed
+_VERDICT_KEYS = {"passed"}
+
+
 def _get(d, key):
-    if isinstance(key, tuple):
-        d = d.get(key[0]) or {}
-        key = key[1]
-    v = d.get(key)
+    path = key if isinstance(key, tuple) else (key,)
+    for k in path[:-1]:
+        d = d.get(k) if isinstance(d, dict) else None
+        d = d if isinstance(d, dict) else {}
+    v = d.get(path[-1])
+    if v is None and path[-1] in _VERDICT_KEYS and d:
+        return "not assessed"
     if isinstance(v, list):
         return "; ".join(str(x) for x in v) or None
     if isinstance(v, bool):
         return "yes" if v else "no"
     return _cell(v)
+
+
+def value_format(v) -> str | None:
+    """The number format that shows ``v`` to 4 significant digits (None for a non-number).
+
+    >>> value_format(24.87), value_format(0.5485), value_format(0.0001199), value_format(8.639e-6)
+    ('0.00', '0.0000', '0.0000000', '0.000E+00')
+    """
+    if not isinstance(v, (int, float)) or isinstance(v, bool) or not math.isfinite(v):
+        return None
+    if v == 0:
+        return "0"
+    e = int(f"{v:.3e}".split("e")[1])
+    if not -4 <= e < 5:
+        return "0.000E+00"
+    nd = max(0, 3 - e)
+    return "0." + "0" * nd if nd else "0"
 
 
 def _sheet_name(specimen: str, used: set) -> str:
@@ -109,26 +135,19 @@ def _wrap(ws, columns):
             row[0].alignment = Alignment(wrap_text=True, vertical="top")
 
 
-def _record_panel(ws, col, result, rec, step):
-    """What the record sheet holds, as label/value rows to the right of the data."""
-    from openpyxl.styles import Font
+#: (header, number format) of the Records sheet: what each record sheet holds
+RECORD_COLUMNS = [
+    ("Specimen", None), ("Sheet", None), ("Record", None), ("Record SHA-256", None),
+    ("Origin offset subtracted, v0 (mm)", "0.00000"), ("Initial slope (kN/mm)", "0.000"),
+    ("P_5 (kN)", "0.000"), ("P_Q (kN)", "0.000"), ("P_max (kN)", "0.000"), ("Samples written", None),
+]
 
-    items = [("Specimen", result.specimen, None), ("Record", result.record, None),
-             ("Record SHA-256", result.record_sha256, None),
-             ("Origin offset subtracted, v0 (mm)", result.origin_offset_mm, "0.00000"),
-             ("Initial slope (kN/mm)", result.initial_slope_kN_per_mm, "0.000"),
-             ("P_5 (kN)", result.P_5_kN, "0.000"), ("P_Q (kN)", result.P_Q_kN, "0.000"),
-             ("P_max (kN)", result.P_max_kN, "0.000"),
-             ("Samples", f"all {rec.load_kN.size}" if step == 1 else f"1 in {step} of {rec.load_kN.size}", None)]
-    for i, (label, value, fmt) in enumerate(items, start=1):
-        ws.cell(row=i, column=col, value=label).font = Font(bold=True)
-        c = ws.cell(row=i, column=col + 1, value=_cell(value))
-        if fmt:
-            c.number_format = fmt
-    from openpyxl.utils import get_column_letter
 
-    ws.column_dimensions[get_column_letter(col)].width = 32
-    ws.column_dimensions[get_column_letter(col + 1)].width = 30
+def _record_row(name, result, rec, step) -> list:
+    n = rec.load_kN.size
+    return [result.specimen, name, result.record, result.record_sha256, _cell(result.origin_offset_mm),
+            _cell(result.initial_slope_kN_per_mm), _cell(result.P_5_kN), _cell(result.P_Q_kN),
+            _cell(result.P_max_kN), f"all {n}" if step == 1 else f"1 in {step} of {n}"]
 
 
 def write_workbook(path, rows) -> None:
@@ -158,24 +177,30 @@ def write_workbook(path, rows) -> None:
                 row[0].number_format = fmt
     _wrap(ws, [j for j, (h, _, _) in enumerate(columns, start=1) if h in _WIDE])
 
+    from reports.certificate import check_unit
+
     wc = wb.create_sheet("Checks")
-    _header(wc, ["Specimen", "Check", "Result", "Value", "Limit", "Clause", "Note"],
-            {5: 40, 6: 60, 7: 30})
+    _header(wc, ["Specimen", "Check", "Result", "Value", "Unit", "Limit", "Clause", "Note"],
+            {6: 40, 7: 60, 8: 30})
     for d in dicts:
         # K_Ic checks, then the elastic-plastic ones (reduce/elastic_plastic.py)
         for c in (d.get("checks") or []) + ((d.get("elastic_plastic") or {}).get("checks") or []):
             verdict = {True: "pass", False: "fail", None: "not assessed"}[c["passed"]]
-            wc.append([d["specimen"], c["name"], verdict, _cell(c["value"]), c["limit"], c["clause"],
-                       c.get("note", "")])
-    for row in wc.iter_rows(min_row=2, min_col=4, max_col=4):
-        row[0].number_format = "0.0000"
-    _wrap(wc, [5, 6, 7])
+            value = _cell(c["value"])
+            wc.append([d["specimen"], c["name"], verdict, value,
+                       check_unit(c["name"], c["limit"] or "") if value is not None else None,
+                       c["limit"], c["clause"], c.get("note", "")])
+            wc.cell(row=wc.max_row, column=4).number_format = value_format(value) or "General"
+    _wrap(wc, [6, 7, 8])
 
+    wi = wb.create_sheet("Records")
+    _header(wi, [h for h, _ in RECORD_COLUMNS], {2: 14, 3: 24, 4: 68, 5: 18, 6: 14})
     used = {n.lower() for n in wb.sheetnames}
     for result, rec, _ in rows:
         if rec is None or result.error:
             continue
-        wr = wb.create_sheet(_sheet_name(result.specimen, used))
+        name = _sheet_name(result.specimen, used)
+        wr = wb.create_sheet(name)
         has_t = rec.time_s is not None
         heads = (["Time (s)"] if has_t else []) + ["Displacement, origin-corrected (mm)", "Load (kN)"]
         _header(wr, heads, {j: 14 if h != heads[-2] else 22 for j, h in enumerate(heads, start=1)})
@@ -189,6 +214,10 @@ def write_workbook(path, rows) -> None:
         for j, fmt in enumerate(fmts, start=1):
             for row in wr.iter_rows(min_row=2, min_col=j, max_col=j):
                 row[0].number_format = fmt
-        _record_panel(wr, len(heads) + 2, result, rec, step)
+        wi.append(_record_row(name, result, rec, step))
+    for j, (_, fmt) in enumerate(RECORD_COLUMNS, start=1):
+        if fmt:
+            for row in wi.iter_rows(min_row=2, min_col=j, max_col=j):
+                row[0].number_format = fmt
     with atomic_path(path) as tmp:
         wb.save(tmp)

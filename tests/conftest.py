@@ -62,3 +62,20 @@ def ct_row():
 def ct_specimen_K():
     """K per kN of the ct_row specimen, MPa·m^½/kN."""
     return specimens.geometry("C(T)").K_per_load(25.0, 50.0, (25.1 + 25.3 + 25.0) / 3)
+
+
+def write_xlsx_record(path: Path, load_kN, disp_mm, time_s=None, *, preamble=(),
+                      load_header="Load (kN)", disp_header="COD (mm)"):
+    """Write a record as an Excel workbook with preamble rows above the header."""
+    import openpyxl
+
+    wb = openpyxl.Workbook()
+    ws = wb.active
+    for line in preamble:
+        ws.append([line])
+    ws.append((["Time (s)"] if time_s is not None else []) + [load_header, disp_header])
+    cols = ([time_s] if time_s is not None else []) + [load_kN, disp_mm]
+    for row in zip(*cols):
+        ws.append([float(x) for x in row])
+    wb.save(path)
+    return path

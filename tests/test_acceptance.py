@@ -113,8 +113,15 @@ def test_a_low_result_without_a_retest_rule_rejects():
 def test_too_few_valid_results_need_further_tests():
     v = verdict([t("A", 28.0), t("B", 29.0), t("C", 31.0, valid=False)])
     assert v.verdict == RETEST
-    assert "2 valid results, 3 required (C do not count)" in v.reason
+    assert "2 valid results, 3 required (C does not count); test further specimens" in v.reason
     assert roles(v)["C"] == "not counted"
+
+
+def test_one_specimen_that_does_not_count_reads_does_not_and_two_read_do_not():
+    one = verdict([t("A", 28.0), t("B", 29.0), t("C", 31.0, valid=False)])
+    two = verdict([t("A", 28.0), t("C", 31.0, valid=False), t("D", 30.0, valid=False)])
+    assert "(C does not count)" in one.reason and "do not count" not in one.reason
+    assert "(C, D do not count)" in two.reason
 
 
 def test_a_heat_carried_only_by_non_qualifying_K_Q_is_not_accepted():
@@ -251,17 +258,29 @@ def test_accept_on_the_demo_campaign(tmp_path):
     assert not (camp / "cracktip.db").exists()
 
 
+def _retest_record(camp, source, name):
+    """A record for a retest row: the data of ``source`` under its own header line, so
+    its bytes (and SHA-256) are its own."""
+    text = (camp / "records" / f"{source}.csv").read_text(encoding="utf-8")
+    (camp / "records" / f"{name}.csv").write_text(text.replace(f"Specimen: {source}", f"Specimen: {name}", 1),
+                                                  encoding="utf-8")
+    return f"records/{name}.csv"
+
+
 def test_retests_named_in_the_sheet_clear_a_low_result(tmp_path):
-    # a stricter invented minimum (29.0) makes AL-02 (K_Ic 28.1) low; two retest rows reuse
-    # the records of AL-01 and AL-03 (K_Ic 29.5 and 30.2) and name AL-02 in retest_of
+    # a stricter invented minimum (29.0) makes AL-02 (K_Ic 28.1) low; two retest rows carry
+    # the load-displacement data of AL-01 and AL-03 (K_Ic 29.5 and 30.2) in records of their
+    # own and name AL-02 in retest_of
     camp = _copy_sample(tmp_path)
     sheet = camp / "campaign.csv"
     with open(sheet, newline="", encoding="utf-8") as fh:
         rows = list(csv.DictReader(fh))
     fields = list(rows[0]) + ["retest_of"]
     by_id = {r["specimen"]: r for r in rows}
-    rows += [dict(by_id["AL-01"], specimen="AL-02R1", retest_of="AL-02"),
-             dict(by_id["AL-03"], specimen="AL-02R2", retest_of="AL-02")]
+    rows += [dict(by_id["AL-01"], specimen="AL-02R1", retest_of="AL-02",
+                  record=_retest_record(camp, "AL-01", "AL-02R1")),
+             dict(by_id["AL-03"], specimen="AL-02R2", retest_of="AL-02",
+                  record=_retest_record(camp, "AL-03", "AL-02R2"))]
     with open(sheet, "w", newline="", encoding="utf-8") as fh:
         w = csv.DictWriter(fh, fieldnames=fields, restval="")
         w.writeheader()
@@ -273,3 +292,110 @@ def test_retests_named_in_the_sheet_clear_a_low_result(tmp_path):
     assert v.verdict == ACCEPTED, v.reason
     assert roles(v)["AL-02"] == "low, set aside"
     assert roles(v)["AL-02R1"] == roles(v)["AL-02R2"] == "retest passed"
+
+
+# ---------------------------------------------------------------- review findings 8, 9 and duplicate records
+
+OVERLAP_BY_MATERIAL = """
+[specification]
+name = "T-2"
+[[requirement]]
+material = "7075"
+orientation = "L-T"
+temperature_C = 21
+min_K_Ic_MPa_sqrt_m = 26.0
+min_valid = 3
+[[requirement]]
+material = "T7351"
+orientation = "L-T"
+temperature_C = 21
+min_K_Ic_MPa_sqrt_m = 24.0
+min_valid = 3
+"""
+
+
+def test_requirements_that_overlap_only_through_the_heats_material_leave_the_heat_not_assessed():
+    # neither material text contains the other, so the file alone is accepted; a heat of
+    # "7075-T7351 plate" is claimed by both, and must not be judged by whichever comes first
+    s = parse_spec(OVERLAP_BY_MATERIAL, file="t2.toml")
+    plate = "7075-T7351 aluminium plate"
+    v = verdict([t(n, K, material=plate) for n, K in (("A", 28.0), ("B", 29.0), ("C", 30.0))], s)
+    assert v.verdict == NOT_ASSESSED
+    assert "requirement 1 (7075, L-T at 21 °C) and requirement 2 (T7351, L-T at 21 °C)" in v.reason
+    assert "ambiguous" in v.reason and plate in v.reason
+    assert set(roles(v).values()) == {"not assessed"}
+    # a heat only one of them applies to is judged as usual
+    other = verdict([t(n, K, material="7075-T651 plate") for n, K in (("A", 28.0), ("B", 29.0), ("C", 30.0))], s)
+    assert other.verdict == ACCEPTED
+
+
+def test_a_record_used_by_two_specimens_is_not_counted_twice_and_stops_the_assessment():
+    same = "ab" * 32
+    tests = [t("A", 28.0, record="r/A.csv", record_sha256=same), t("B", 29.0, record="r/B.csv", record_sha256="cd" * 32),
+             t("C", 30.0, record="r/C.csv", record_sha256="ef" * 32),
+             t("D", 28.0, record="r/D.csv", record_sha256=same)]  # the bytes of A's record again
+    v = verdict(tests)
+    assert v.verdict == NOT_ASSESSED
+    assert roles(v)["D"] == "duplicate record" and roles(v)["A"] == "counted"
+    assert "D's record r/D.csv has the same SHA-256 (abababababab…) as the record of A, r/A.csv" in v.reason
+    (outcome,) = v.outcomes
+    assert [s.specimen for s in outcome.specimens if s.role == "counted"] == ["A", "B", "C"]
+
+
+def test_a_record_reused_in_another_heat_is_flagged_there_too():
+    same = "ab" * 32
+    v1, v2 = heat_verdicts([t("A", 28.0, record="r/A.csv", record_sha256=same),
+                            t("X", 28.0, heat="H2", record="r/X.csv", record_sha256=same)], spec())
+    assert roles(v2)["X"] == "duplicate record" and "as the record of A (heat H1), r/A.csv" in v2.reason
+    assert "duplicate record" not in roles(v1).values()
+    # the sheet naming the very same file twice says so plainly
+    (v,) = heat_verdicts([t("A", 28.0, record="r/A.csv", record_sha256=same),
+                          t("B", 29.0, record="r/A.csv", record_sha256=same)], spec())
+    assert "B names the record of A, r/A.csv: one test cannot count as two specimens" in v.reason
+
+
+def _undersized(name, K_Q, actual=24.8, yield_MPa=470.0):
+    from reduce.acceptance import SizeShortfall
+    from reduce.rules import size_required
+
+    short = (SizeShortfall("ligament_size", actual, size_required(K_Q, yield_MPa, 2.5), K_Q),)
+    return t(name, K_Q, valid=False, size_shortfalls=short)
+
+
+def test_undersized_specimens_are_told_to_be_larger_not_to_test_more():
+    # invented: K_Q 110-120 MPa·m^½ at σ_YS 470 MPa asks W − a ≥ 137-163 mm (ASTM E399 9.1.3,
+    # 2.5 (K_Q/σ_YS)², from memory); these have 24.8 mm, so they qualify at most
+    # 470 √(24.8/2500) = 46.8 MPa·m^½, below the minimum 90
+    s = parse_spec(SPEC.format(extra="").replace("26.0", "90.0"), file="t1.toml")
+    v = verdict([_undersized("A", 110.0), _undersized("B", 115.0), _undersized("C", 120.0)], s)
+    assert v.verdict == RETEST
+    assert "valid K_Ic cannot be obtained with specimens of this size" in v.reason
+    assert "W − a ≥ 136.9–163.0 mm (these have 24.8 mm)" in v.reason
+    assert "the largest K_Ic they could qualify (46.8 MPa·m^½) is below the minimum 90.0" in v.reason
+    assert "test larger specimens (W − a ≥ 163 mm)" in v.reason and "elastic–plastic result" in v.reason
+    assert "test further specimens" not in v.reason
+
+
+def test_a_narrow_size_failure_still_asks_for_further_specimens():
+    # required W − a only 10 % above the specimen's: not a wide margin
+    s = parse_spec(SPEC.format(extra="").replace("26.0", "90.0"), file="t1.toml")
+    narrow = _undersized("C", 100.0, actual=0.9 * 2.5 * (100.0 / 470.0) ** 2 * 1000)
+    v = verdict([t("A", 95.0), t("B", 96.0), narrow], s)
+    assert "test further specimens" in v.reason and "larger" not in v.reason
+
+
+def test_the_demo_pressure_vessel_heat_is_told_its_specimens_are_too_small():
+    tests = acceptance_inputs(reduce_sheet(SAMPLE / "campaign.csv"))
+    v = next(v for v in heat_verdicts(tests, read_spec(SAMPLE / "spec_example.toml")) if v.heat == "H-PV33")
+    assert v.verdict == RETEST and "valid K_Ic cannot be obtained with specimens of this size" in v.reason
+    assert "test further specimens" not in v.reason
+
+
+def test_accept_with_a_spec_typo_is_a_clear_error_not_a_traceback(tmp_path, capsys):
+    camp = _copy_sample(tmp_path)
+    bad = camp / "spec_example.toml"
+    bad.write_text(bad.read_text().replace("min_valid = 3", "min_vaild = 3", 1))
+    code = main(["accept", str(camp / "campaign.csv"), "--spec", str(bad), "--no-store"])
+    err = capsys.readouterr().err
+    assert code == 2 and "Traceback" not in err
+    assert "spec_example.toml" in err and "key 'min_vaild': unknown key" in err

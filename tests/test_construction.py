@@ -73,3 +73,37 @@ def test_record_without_rising_part_is_refused():
         initial_slope(np.array([1.0, 1.0, 1.0]), np.array([0.0, 1.0, 2.0]))
     with pytest.raises(ReductionError, match="no positive load"):
         initial_slope(np.zeros(50), np.linspace(0, 1, 50))
+
+
+def _power_law_record(k=55.0, c=0.02, P0=20.0, n_exp=5.0, P_end=24.0, n=1500, noise=0.02, seed=0):
+    """A record from a different curve family than reduce.synthetic: displacement as a
+    power law of load, v = P/k + c (P/P0)^n (a Ramberg–Osgood-like form), sampled in
+    load, with noise and an offset.  Its 5 % secant load solves
+    P/k + c (P/P0)^n = P/(0.95 k), found here with scipy's brentq."""
+    from scipy.optimize import brentq
+
+    rng = np.random.default_rng(seed)
+    P = np.linspace(0.0, P_end, n)
+    v = P / k + c * (P / P0) ** n_exp + 0.07
+    P5 = brentq(lambda p: p / k + c * (p / P0) ** n_exp - p / (0.95 * k), 1.0, 100.0)
+    return P + rng.normal(0.0, noise, n), v, P5
+
+
+@pytest.mark.parametrize("seed", range(5))
+def test_other_curve_family_type_I(seed):
+    load, disp, P5 = _power_law_record(seed=seed)
+    assert P5 < 24.0  # the record passes the secant
+    res = secant_construction(load, disp)
+    assert res.curve_type == "I"
+    assert res.P_Q == pytest.approx(P5, rel=0.01)
+
+
+def test_other_curve_family_stopped_before_secant_is_type_III():
+    load, disp, P5 = _power_law_record(P_end=15.0)
+    assert P5 > 15.0
+    # the specimen breaks at 15 kN: the load falls to zero at constant opening
+    load = np.concatenate([load, [6.0, 0.5, 0.0]])
+    disp = np.concatenate([disp, [disp[-1] + 0.001] * 3])
+    res = secant_construction(load, disp)
+    assert res.curve_type == "III"
+    assert res.P_Q == pytest.approx(15.0, rel=0.01)

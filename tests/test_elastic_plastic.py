@@ -12,6 +12,12 @@ Reference values and where they come from:
   shown in the tests.
 * Closed-form integral of the m = 2 constructed curve: elementary calculus,
   worked in the test.
+* Events and validity (regression tests of review finding "Blocker 2"): J_c at
+  instability or a significant pop-in, J_m at a maximum load plateau (ASTM E1820,
+  BS 7448-1, from memory); the ASTM E1921 limit only for cleavage of ferritic
+  steels with 0.45 <= a0/W <= 0.55 and yield 275-825 MPa (from memory); the
+  K_Ic crack-front, precrack and surface-trace checks carried over as a proxy
+  (cracktip rule, limits.toml).
 """
 
 import json
@@ -22,7 +28,9 @@ import numpy as np
 import pytest
 
 import specimens
-from reduce.elastic_plastic import (K_from_J, elastic_J, elastic_plastic_result, plastic_J,
+from reduce.construction import secant_construction
+from reduce.elastic_plastic import (K_from_J, elastic_J, elastic_plastic_result, ferritic_steel,
+                                    kjc_limit_applies, load_fall_after_maximum, plastic_J,
                                     plastic_work, point_of_interest, work_under_record)
 from reduce.models import Specimen
 from reduce.pipeline import reduce_arrays, reduce_sheet
@@ -52,6 +60,13 @@ def _seb(**kw):
 def _ep(load, disp, spec):
     r = reduce_arrays(load, disp, spec)
     return r.to_dict()["elastic_plastic"], r
+
+
+def _steel(**kw):
+    """A C(T) of a ferritic steel inside the ASTM E1921 scope (yield 275-825 MPa, from memory)."""
+    d = dict(yield_MPa=450.0, tensile_MPa=600.0, metadata={"material": "ferritic pressure-vessel steel"})
+    d.update(kw)
+    return _ct(**d)
 
 
 def _bilinear(k, P_y, h, v_end, n1=400, n2=1200):
@@ -233,6 +248,15 @@ def _peaked_record(n=4001, noise=0.0, seed=0):
     return P + np.random.default_rng(seed).normal(0.0, noise, n), v
 
 
+def _cleaved_record(n=3001, at_mm=1.8):
+    """The peaked record cut by cleavage at ``at_mm``, past the peak (invented curve)."""
+    P, v = _peaked_record(n=n)
+    cut = int(np.searchsorted(v, at_mm))
+    P = np.concatenate([P[:cut], P[cut - 1] * np.array([0.7, 0.3, 0.05, 0.0])])
+    v = np.concatenate([v[:cut], v[cut - 1] + np.array([0.001, 0.002, 0.003, 0.004])])
+    return P, v
+
+
 @pytest.mark.parametrize("record", ["rising", "peaked", "peaked_noisy", "fracture"])
 @pytest.mark.parametrize("step", [2, 5])
 def test_thinning_the_record_changes_J_by_less_than_half_a_percent(record, step):
@@ -307,17 +331,20 @@ def test_plastic_J_units():
 # --- checks --------------------------------------------------------------------------------
 
 def test_size_checks_fail_for_a_small_tough_specimen_and_name_their_values():
-    spec = _ct(B=10.0, W=20.0, a_readings=(10.0, 10.0, 10.0), yield_MPa=300.0, tensile_MPa=500.0)
-    P, v = _peaked_record()
+    spec = _steel(B=10.0, W=20.0, a_readings=(10.0, 10.0, 10.0), yield_MPa=300.0, tensile_MPa=500.0)
+    P, v = _cleaved_record()
     ep, _ = _ep(P, v, spec)
+    assert ep["point"] == "instability"
     by = {c["name"]: c for c in ep["checks"]}
-    assert set(by) == {"ep_a_over_W", "j_thickness_size", "j_ligament_size", "kjc_ligament_size", "ctod_size"}
+    assert set(by) == {"ep_a_over_W", "ep_crack_front", "ep_precrack_kmax", "ep_surface_crack",
+                       "j_thickness_size", "j_ligament_size", "kjc_ligament_size", "ctod_size"}
     J, sigma_Y = ep["J_kJ_per_m2"], 0.5 * (300.0 + 500.0)
     assert ep["sigma_Y_MPa"] == sigma_Y
     # required 10 J/σ_Y in mm (kJ/m² / MPa = mm)
     assert f"{10 * J / sigma_Y:.2f} mm" in by["j_ligament_size"]["limit"]
     assert by["j_ligament_size"]["passed"] is (10.0 >= 10 * J / sigma_Y)
     assert by["kjc_ligament_size"]["passed"] is False and ep["K_J_valid"] is False
+    assert ep["verdicts"]["K_J"]["failed"] == ["kjc_ligament_size"]
     # ASTM E1921 (from memory): K_Jc(limit) = sqrt(E b0 σ_ys / (30 (1 - ν²))), b0 in m
     assert ep["K_Jc_limit_MPa_sqrt_m"] == pytest.approx(
         math.sqrt(205000.0 * 0.010 * 300.0 / (30 * 0.91)), rel=1e-12)
@@ -338,7 +365,7 @@ def test_seb_with_load_line_displacement_gives_J_but_no_ctod():
     P, v = _peaked_record()
     ep, _ = _ep(P, v, _seb(displacement_type="load_line"))
     assert ep["eta"] == 1.9 and ep["J_kJ_per_m2"] > 0
-    assert ep["CTOD_mm"] is None and ep["CTOD_valid"] is False
+    assert ep["CTOD_mm"] is None and ep["CTOD_valid"] is None  # not determined: no verdict
     by = {c["name"]: c for c in ep["checks"]}
     assert by["ctod_size"]["passed"] is None
     assert any("CTOD not determined" in n for n in ep["notes"])
@@ -389,13 +416,17 @@ def test_sample_tough_steel_gets_elastic_plastic_results_everywhere(tmp_path):
     ws = wb["Results"]
     head = [c.value for c in ws[1]]
     rows = {row[0]: dict(zip(head, row)) for row in ws.iter_rows(min_row=2, values_only=True)}
+    from reports.workbook import RESULT_COLUMNS
+    # the column of the K_J verdict, found by the result key it shows
+    kj_head = next(h for h, key, _ in RESULT_COLUMNS
+                   if key in (("elastic_plastic", "K_J_valid"), ("elastic_plastic", "verdicts", "K_J", "passed")))
     checks = {(row[0], row[1]) for row in wb["Checks"].iter_rows(min_row=2, values_only=True)}
     for r in tough:
         ep = data[r.specimen]["elastic_plastic"]
         assert data[r.specimen]["valid"] is False
         for key in ("J_kJ_per_m2", "K_J_MPa_sqrt_m", "CTOD_mm"):
             assert ep[key] is not None and ep[key] > 0
-        assert isinstance(ep["valid"], bool) and len(ep["checks"]) == 5
+        assert isinstance(ep["valid"], bool) and len(ep["checks"]) == 8
         # a tough steel: plastic work is a real share of J, and K_J exceeds K_Q
         assert ep["J_pl_kJ_per_m2"] > 0.2 * ep["J_kJ_per_m2"]
         assert ep["K_J_MPa_sqrt_m"] > data[r.specimen]["K_Q_MPa_sqrt_m"]
@@ -403,22 +434,28 @@ def test_sample_tough_steel_gets_elastic_plastic_results_everywhere(tmp_path):
         assert row["J (kJ/m²)"] == pytest.approx(ep["J_kJ_per_m2"])
         assert row["K_J (MPa·m^½)"] == pytest.approx(ep["K_J_MPa_sqrt_m"])
         assert row["CTOD (mm)"] == pytest.approx(ep["CTOD_mm"])
-        assert row["K_J qualifies (E1921 size)"] == ("yes" if ep["K_J_valid"] else "no")
-        assert (r.specimen, "kjc_ligament_size") in checks
+        if ep["K_J_valid"] is None:  # not assessed: said so, or an empty cell
+            assert row[kj_head] in (None, "not assessed")
+        else:
+            assert row[kj_head] == ("yes" if ep["K_J_valid"] else "no")
+        assert (r.specimen, "kjc_ligament_size") in checks and (r.specimen, "ep_crack_front") in checks
         text = " ".join(elastic_plastic_paragraph(data[r.specimen]))
-        assert "does not qualify as K_Ic" in text and "Available instead" in text
+        assert "does not qualify as K_Ic" in text and "Available instead, at " in text
         assert f"{ep['K_J_MPa_sqrt_m']:.1f} MPa·m^½" in text
-        assert ("qualifies by ASTM E1921" in text) is ep["K_J_valid"]
+        # the demo PV plates pass a load maximum: J_m and delta_m, size-checked; K_J not (not cleavage)
+        assert ep["point"] == "P_max" and ep["names"] == {"J": "J_m", "K_J": "K_J", "CTOD": "delta_m"}
+        assert ep["J_valid"] is True and ep["CTOD_valid"] is True and ep["K_J_valid"] is None
+        assert "J_m = " in text and "meets the ASTM E1820 J size rule" in text and "qualifies by" not in text
 
 
 def test_paragraph_names_the_failed_check():
-    spec = _ct(B=10.0, W=20.0, a_readings=(10.0, 10.0, 10.0), yield_MPa=300.0)
-    P, v = _peaked_record()
+    spec = _steel(B=10.0, W=20.0, a_readings=(10.0, 10.0, 10.0), yield_MPa=300.0, tensile_MPa=None)
+    P, v = _cleaved_record()
     d = reduce_arrays(P, v, spec).to_dict()
     lines = elastic_plastic_paragraph(d)
     assert lines[0].startswith("K_Q = ") and "does not qualify as K_Ic" in lines[0]
-    k_line = next(x for x in lines if x.startswith("K_J = "))
-    assert "does not qualify" in k_line and "kjc_ligament_size" in k_line
+    k_line = next(x for x in lines if x.startswith("K_Jc = "))
+    assert "does not meet the requirements" in k_line and "kjc_ligament_size" in k_line
     assert any("Poisson's ratio not given" in x for x in lines)
 
 
@@ -435,7 +472,213 @@ def test_sample_tough_steel_certificate_carries_the_elastic_plastic_section(tmp_
     pdf = tmp_path / "pv.pdf"
     build_certificate(pdf, "H-PV33", rows, load_lab_profile(), "e399", SAMPLE, sha, draft=True)
     text = " ".join(" ".join(p.extract_text().split()) for p in PdfReader(pdf).pages)
-    assert text.count("Available instead") == 3
+    assert text.count("Available instead, at the maximum load plateau") == 3
     for r in tough:
         ep = r.extra["elastic_plastic"]
         assert f"{ep['K_J_MPa_sqrt_m']:.1f}" in text and f"{ep['CTOD_mm']:.4f}" in text
+
+
+# --- regression tests: validity of the elastic-plastic result (review, Blocker 2) ------------
+
+def _sample():
+    return {r.specimen: r for r, _, _ in reduce_sheet(SAMPLE)}
+
+
+@pytest.mark.parametrize("fault, check", [
+    (dict(a_readings=(22.0, 25.0, 26.0)), "ep_crack_front"),                   # (26 - 22)/24.33 = 0.16 > 0.10
+    (dict(precrack_Kmax=60.0), "ep_precrack_kmax"),                           # well above 0.8 K_Q
+    (dict(surface=(19.0, 24.0)), "ep_surface_crack"),                         # |19 - 25|/25 = 0.24 > 0.15
+])
+def test_crack_front_precrack_and_surface_failures_fail_the_elastic_plastic_result(fault, check):
+    P, v = _cleaved_record()
+    good, _ = _ep(P, v, _steel(precrack_Kmax=15.0, surface=(24.5, 24.8)))
+    assert good["J_valid"] is True and good["CTOD_valid"] is True  # the same record passes when sound
+    ep, r = _ep(P, v, _steel(**{"precrack_Kmax": 15.0, "surface": (24.5, 24.8), **fault}))
+    assert check[3:] in {c.name for c in r.checks if c.passed is False}  # the K_Ic check failed ...
+    by = {c["name"]: c for c in ep["checks"]}
+    assert by[check]["passed"] is False  # ... and is carried over, with its K_Ic value
+    assert by[check]["value"] == next(c.value for c in r.checks if c.name == check[3:])
+    assert "proxy" in by[check]["clause"]
+    for q in ("J", "K_J", "CTOD"):
+        assert ep[f"{q}_valid"] is False and check in ep["verdicts"][q]["failed"]
+    assert ep["valid"] is False
+    text = " ".join(elastic_plastic_paragraph(r.to_dict()))
+    assert "size check passed" not in text and f"{check} failed" in text
+
+
+def test_sample_specimens_with_failed_front_precrack_or_traces_do_not_pass_elastic_plastic():
+    # AL-04: precrack K_max; AL-05: surface traces; ST-04: crack front (review, Blocker 2)
+    results = _sample()
+    for sid, check in (("AL-04", "ep_precrack_kmax"), ("AL-05", "ep_surface_crack"), ("ST-04", "ep_crack_front")):
+        ep = results[sid].extra["elastic_plastic"]
+        assert all(ep[f"{q}_valid"] is False for q in ("J", "K_J", "CTOD")), sid
+        assert ep["valid"] is False
+        text = " ".join(elastic_plastic_paragraph(results[sid].to_dict()))
+        assert "size check passed" not in text and check in text, sid
+
+
+def test_without_the_K_Ic_checks_no_quantity_passes():
+    P, v = _cleaved_record()
+    spec = _steel()
+    r = reduce_arrays(P, v, spec)
+    ep = elastic_plastic_result(P, v, spec, secant_construction(P, v), 25.0, r.K_Q_MPa_sqrt_m / r.P_Q_kN)
+    assert {c["name"]: c["passed"] for c in ep["checks"]}["ep_crack_front"] is None
+    assert ep["J_valid"] is None and ep["CTOD_valid"] is None and ep["valid"] is False
+
+
+def test_record_ending_still_rising_is_at_end_of_record_and_not_assessed():
+    rec = make_record("I", k=40.0, P_y=30.0, m=4.0, n=3001, overshoot=2.0)  # rises to its last sample
+    ep, r = _ep(rec.load_kN, rec.disp_mm, _steel())
+    assert ep["point"] == "end_of_record" and ep["event_defined"] is False
+    assert ep["J_kJ_per_m2"] > 0 and ep["CTOD_mm"] > 0  # reported ...
+    assert ep["J_valid"] is None and ep["K_J_valid"] is None and ep["CTOD_valid"] is None  # ... not judged
+    assert ep["valid"] is False
+    by = {c["name"]: c for c in ep["checks"]}
+    for name in ("j_thickness_size", "j_ligament_size", "ctod_size"):
+        assert by[name]["passed"] is None and "no event is defined" in by[name]["note"]
+    assert by["kjc_ligament_size"]["passed"] is None and "not a cleavage" in by["kjc_ligament_size"]["note"]
+    text = " ".join(elastic_plastic_paragraph(r.to_dict()))
+    assert "no maximum seen" in text and "not assessed" in text and "size check passed" not in text
+
+
+def test_load_maximum_must_be_followed_by_a_fall_to_be_the_maximum_load_event():
+    P, v = _peaked_record(noise=0.02, seed=4)  # falls 12 % after the peak
+    poi = point_of_interest(P, v, 40.0, noise_sd_kN=0.02)
+    assert poi.kind == "P_max" and poi.defined and poi.index == int(np.argmax(P)) and poi.fall > 0.05
+    # level within 0.5 % of the top at the end: no maximum seen (the 1 % of limits.toml)
+    flat = np.minimum(P, P.max() * (1 - 0.005 * np.clip(v - 1.0, 0.0, None)))
+    flat[v > 1.0] = np.maximum(flat[v > 1.0], 0.995 * P.max())
+    assert load_fall_after_maximum(flat, v, 0.02) is None
+    assert point_of_interest(flat, v, 40.0, noise_sd_kN=0.02).kind == "end_of_record"
+    # the scatter alone must not make a fall: 1.2 % dips of single samples on a level top
+    level = np.where(v > 1.0, P.max(), P)
+    level[np.arange(level.size) % 97 == 0] *= 0.988
+    assert load_fall_after_maximum(level, v, 0.02) is None
+
+
+def test_maximum_load_event_names_J_m_and_delta_m():
+    P, v = _peaked_record()
+    ep, _ = _ep(P, v, _steel())
+    assert ep["point"] == "P_max" and ep["names"] == {"J": "J_m", "K_J": "K_J", "CTOD": "delta_m"}
+    assert ep["J_valid"] is True and ep["CTOD_valid"] is True
+    # ASTM E1921 is a cleavage method: its limit is not applied at a maximum load plateau
+    assert ep["K_J_valid"] is None and "cleavage" in ep["verdicts"]["K_J"]["rule_clause"]
+    kjc = next(c for c in ep["checks"] if c["name"] == "kjc_ligament_size")
+    assert kjc["passed"] is None and "not a cleavage instability" in kjc["note"]
+
+
+def test_pop_in_before_P_max_is_the_point_of_interest():
+    rec = make_record("II", k=40.0, P_y=30.0, m=6.0, n=3000)
+    ep, r = _ep(rec.load_kN, rec.disp_mm, _steel())
+    sec = secant_construction(rec.load_kN, rec.disp_mm)
+    assert r.curve_type == "II" and r.P_max_kN > r.P_Q_kN
+    assert ep["point"] == "pop_in" and ep["event_defined"] is True
+    assert ep["P_kN"] == pytest.approx(r.P_Q_kN, rel=1e-12)
+    assert ep["P_kN"] == pytest.approx(rec.P_Q, rel=1e-3)  # the construction's P_Q: within a sample
+    assert ep["v_mm"] == pytest.approx(sec.v_Q, rel=1e-12)
+    assert ep["names"] == {"J": "J_c", "K_J": "K_Jc", "CTOD": "delta_c"}
+    # the pop-in comes before P_max: J there is below J at the highest load of the record
+    i_max = int(np.argmax(rec.load_kN))
+    assert ep["work_total_J"] < plastic_work(rec.load_kN, rec.disp_mm - sec.fit.origin_mm, i_max,
+                                             sec.fit.slope)[0]
+    # the sample record with a pop-in (AL-02) is evaluated at it, not at P_max after it
+    al02 = _sample()["AL-02"]
+    ep = al02.extra["elastic_plastic"]
+    assert ep["point"] == "pop_in" and ep["P_kN"] == pytest.approx(al02.P_Q_kN) and ep["P_kN"] < al02.P_max_kN
+
+
+@pytest.mark.parametrize("kind, a_over_W, yield_MPa, material, applies, why", [
+    ("instability", 0.50, 450.0, "ferritic steel", True, ""),
+    ("pop_in", 0.45, 275.0, "normalised carbon steel plate", True, ""),
+    ("P_max", 0.50, 450.0, "ferritic steel", False, "not a cleavage instability"),
+    ("end_of_record", 0.50, 450.0, "ferritic steel", False, "not a cleavage instability"),
+    ("instability", 0.50, 450.0, "7075-T7351 aluminium plate", False, "not a ferritic steel"),
+    ("instability", 0.50, 450.0, "austenitic stainless steel 316L", False, "not a ferritic steel"),
+    ("instability", 0.50, 450.0, None, False, "gives no material"),
+    ("instability", 0.579, 450.0, "ferritic steel", False, "a0/W = 0.579 is outside 0.45 to 0.55"),
+    ("instability", 0.44, 450.0, "ferritic steel", False, "a0/W = 0.440"),
+    ("instability", 0.50, 1380.0, "4340 steel", False, "yield strength 1380 MPa is outside 275 to 825"),
+])
+def test_E1921_limit_applies_only_to_cleavage_of_ferritic_steel_in_its_range(kind, a_over_W, yield_MPa,
+                                                                              material, applies, why):
+    # ASTM E1921 scope (from memory): cleavage of ferritic steels, 0.45 <= a0/W <= 0.55,
+    # yield strength 275 to 825 MPa
+    ok, reason = kjc_limit_applies(kind, a_over_W, yield_MPa, material)
+    assert ok is applies and why in reason
+
+
+@pytest.mark.parametrize("material, ferritic", [
+    ("ferritic stainless steel 430", True),          # says ferritic: counts, although 'stainless'
+    ("pressure-vessel steel plate, normalised", True),
+    ("duplex stainless steel", False), ("Ti-6Al-4V titanium forging", False), ("grey cast iron", False),
+    ("", False),
+])
+def test_material_text_decides_ferritic_steel(material, ferritic):
+    assert ferritic_steel(material)[0] is ferritic
+
+
+def test_E1921_limit_is_not_applied_to_ST_03_outside_its_a_over_W_range():
+    # ST-03: a/W = 0.579 (review, Blocker 2); J and CTOD keep their own rules (E1820 a0/W up to 0.70)
+    ep = _sample()["ST-03"].extra["elastic_plastic"]
+    kjc = next(c for c in ep["checks"] if c["name"] == "kjc_ligament_size")
+    assert ep["K_J_valid"] is None and kjc["passed"] is None and "a0/W = 0.579" in kjc["note"]
+    assert ep["point"] == "instability" and ep["J_valid"] is True
+
+
+def test_E1921_limit_is_applied_to_cleavage_of_a_ferritic_steel():
+    P, v = _cleaved_record()
+    ep, _ = _ep(P, v, _steel())
+    kjc = next(c for c in ep["checks"] if c["name"] == "kjc_ligament_size")
+    assert kjc["passed"] is True and ep["K_J_valid"] is True
+    assert ep["K_J_MPa_sqrt_m"] <= ep["K_Jc_limit_MPa_sqrt_m"]
+    # the same record with an aluminium alloy: the E1921 limit is not assessed
+    ep, _ = _ep(P, v, _ct(metadata={"material": "2024-T351 aluminium plate"}, yield_MPa=450.0))
+    assert ep["K_J_valid"] is None and ep["J_valid"] is True
+
+
+def test_J_size_rule_is_named_with_its_source_for_J_c_and_J_m():
+    P, v = _peaked_record()
+    ep, _ = _ep(P, v, _steel())
+    j = ep["verdicts"]["J"]
+    assert j["rule"] == "ASTM E1820 J size rule B, b0 >= 10 J/sigma_Y"
+    assert "J_c" in j["rule_clause"] and "J_m" in j["rule_clause"] and "from memory" in j["rule_clause"]
+    assert "not a size-independent toughness" in j["rule_clause"]
+    assert j["checks"][-2:] == ["j_thickness_size", "j_ligament_size"]
+
+
+def test_wording_says_size_check_passed_not_qualifies():
+    P, v = _cleaved_record()
+    r = reduce_arrays(P, v, _steel())  # K_Q fails on P_max/P_Q, J passes
+    assert r.valid is False
+    lines = elastic_plastic_paragraph(r.to_dict())
+    text = " ".join(lines)
+    assert not any(" qualifies" in x for x in lines[1:])
+    ep = r.extra["elastic_plastic"]
+    assert ep["J_valid"] is True
+    assert "J_c = " in text and "size check passed: meets the ASTM E1820 J size rule" in text
+    # the paragraph states the event, the value, the rule and what was not assessed
+    assert "Event: the instability" in text and f"{ep['J_kJ_per_m2']:.1f} kJ/m²" in text
+    assert "Not assessed: ep_precrack_kmax (" in text and "ep_surface_crack (" in text
+
+
+# --- regression test: the Poisson default on aluminium (review, finding 12) ------------------
+
+def test_poisson_default_note_is_not_for_steels_only():
+    P, v = _peaked_record()
+    al, _ = _ep(P, v, _ct(metadata={"material": "7075-T7351 aluminium plate"}))
+    st, _ = _ep(P, v, _ct(metadata={"material": "4340 steel"}))
+    assert al["poisson"] == st["poisson"] == 0.3 and al["poisson_assumed"] is True  # the issue's default
+    for ep in (al, st):
+        note = next(a for a in ep["assumptions"] if a.startswith("Poisson's ratio not given"))
+        assert "for steels, no source" not in note and "steels" in note and "aluminium alloys" in note
+        assert "common practice, no source" in note
+    al_note = next(a for a in al["assumptions"] if a.startswith("Poisson's ratio not given"))
+    # (1 - 0.33²)/(1 - 0.3²) = 0.8911/0.91 = 0.97923: J_el 2.1 % lower with 0.33
+    assert "about 0.33 is typical" in al_note and "2.1 % lower" in al_note
+    assert "is typical:" not in next(a for a in st["assumptions"] if a.startswith("Poisson"))
+
+
+def test_sample_aluminium_certificate_text_has_no_steel_only_poisson_note():
+    al = _sample()["AL-01"]
+    text = " ".join(elastic_plastic_paragraph(al.to_dict()))
+    assert "common practice for steels" not in text and "aluminium alloys, about 0.33" in text

@@ -138,3 +138,39 @@ def test_iso_rules_size_thickness(tmp_path, ct_row):
     assert {"thickness_size", "crack_length_size", "ligament_size"} <= names
     assert "thickness_size" not in {c.name for c in e399.checks}
     assert next(c for c in iso.checks if c.name == "thickness_size").passed is False
+
+
+# every record style of the core issue, for every curve type: known P_Q within 1 %,
+# K_Q within 1.5 %, with noise and a displacement offset
+FORMATS = {
+    "csv_preamble": dict(sep=",", preamble=["Invented rig 7", "Date: 2026-11-30", ""]),
+    "tsv": dict(sep="\t", load_header="Force [N]", load_factor=1000.0),
+    "semicolon_decimal_comma": dict(sep=";", decimal=",", disp_header="CMOD [mm]",
+                                    preamble=["Probe;X;Rig;B"]),
+    "us_units": dict(sep=",", load_header="load_lbf", disp_header="Crack opening (in)",
+                     load_factor=1000.0 / LBF_N, disp_factor=1.0 / INCH_MM),
+    "micrometres": dict(sep=",", load_header="Load [kN]", disp_header="COD [µm]", disp_factor=1000.0),
+    "xlsx": None,
+}
+
+
+@pytest.mark.parametrize("fmt", sorted(FORMATS))
+@pytest.mark.parametrize("kind", ["I", "II", "III"])
+def test_each_curve_type_in_each_format(tmp_path, ct_row, fmt, kind):
+    from conftest import write_xlsx_record
+
+    rec = make_record(kind, k=40.0, P_y=8.0, noise_kN=0.006, offset_mm=0.035, toe_mm=0.01, seed=11)
+    if FORMATS[fmt] is None:
+        name = "r.xlsx"
+        write_xlsx_record(tmp_path / name, rec.load_kN, rec.disp_mm, rec.time_s,
+                          preamble=["Invented rig export", "Operator: nobody"])
+    else:
+        name = "r.txt"
+        write_csv_record(tmp_path / name, rec.load_kN, rec.disp_mm, rec.time_s, **FORMATS[fmt])
+    write_sheet(tmp_path / "s.csv", [dict(ct_row, record=name)])
+    (result, _, _), = reduce_sheet(tmp_path / "s.csv")
+    assert result.error is None, result.error
+    assert result.curve_type == kind
+    assert result.P_Q_kN == pytest.approx(rec.P_Q, rel=0.01)
+    assert result.K_Q_MPa_sqrt_m == pytest.approx(rec.P_Q * K_CT, rel=0.015)
+    assert result.origin_offset_mm == pytest.approx(0.035 + 0.01, abs=0.005)

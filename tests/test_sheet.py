@@ -100,3 +100,11 @@ def test_semicolon_sheet(tmp_path, ct_row):
 def test_safe_name_never_a_path(bad):
     name = safe_name(bad)
     assert "/" not in name and "\\" not in name and name not in ("", ".", "..")
+
+
+def test_knife_edge_height_reaches_the_dimensions(tmp_path, ct_row):
+    # regression: the sheet had no column for z, so CTOD always assumed z = 0
+    (s,) = read_sheet(write_sheet(tmp_path / "s.csv", [dict(ct_row, z_mm=1.5)]))
+    assert s.dims["z"] == 1.5
+    rows = read_sheet(write_sheet(tmp_path / "t.csv", [dict(ct_row, z_in=-0.1)]))
+    assert isinstance(rows[0], BadRow) and rows[0].error.column == "z_in"

@@ -70,6 +70,7 @@ def test_checks_sheet_has_every_check(book):
 def test_record_sheets_hold_the_origin_corrected_record(book):
     sheets = pd.read_excel(book["path"], sheet_name=None)
     assert "results_2" in sheets and "BAD" not in sheets
+    info = sheets["Records"].set_index("Sheet")
     for (r, rec, _), name in zip(book["rows"][:3], ["T1", "T2", "results_2"]):
         df = sheets[name]
         v = df["Displacement, origin-corrected (mm)"].to_numpy()
@@ -77,11 +78,50 @@ def test_record_sheets_hold_the_origin_corrected_record(book):
         np.testing.assert_allclose(v, rec.disp_mm - r.origin_offset_mm, rtol=0, atol=1e-12)
         np.testing.assert_allclose(df["Load (kN)"].to_numpy(), rec.load_kN, rtol=0, atol=1e-12)
         np.testing.assert_allclose(df["Time (s)"].to_numpy(), rec.time_s, rtol=0, atol=1e-12)
-        # the panel beside the data says what was subtracted
-        ws = openpyxl.load_workbook(book["path"], read_only=True)[name]
-        panel = {row[0]: row[1] for row in ws.iter_rows(min_col=5, max_col=6, max_row=9, values_only=True)}
-        assert panel["Origin offset subtracted, v0 (mm)"] == pytest.approx(r.origin_offset_mm, rel=1e-12)
-        assert panel["Record SHA-256"] == r.record_sha256
+        # the Records sheet says what was subtracted and which file it is
+        assert info.loc[name, "Specimen"] == r.specimen
+        assert info.loc[name, "Origin offset subtracted, v0 (mm)"] == pytest.approx(r.origin_offset_mm, rel=1e-12)
+        assert info.loc[name, "Record SHA-256"] == r.record_sha256
+        assert info.loc[name, "Samples written"] == f"all {rec.load_kN.size}"
+
+
+def test_record_sheets_read_back_as_clean_columns_without_a_side_panel(book):
+    # regression: a panel beside the data made read_excel return 'Unnamed: 3' and 'Specimen' columns
+    sheets = pd.read_excel(book["path"], sheet_name=None)
+    for name in ("T1", "T2", "results_2"):
+        assert list(sheets[name].columns) == ["Time (s)", "Displacement, origin-corrected (mm)", "Load (kN)"]
+        assert not sheets[name].isna().all().any()
+
+
+def test_checks_value_format_shows_small_values_and_each_check_has_its_unit(tmp_path):
+    # regression: format 0.0000 showed 8.6e-6 as 0.0000, and there was no units column
+    from reduce.rules import Check
+
+    rec = make_record("I", k=40.0, P_y=8.0, seed=3)
+    spec = Specimen("N1", "C(T)", B=25, W=50, a_readings=(25.1, 25.3, 25.0), yield_MPa=500, E_MPa=72000)
+    result = reduce_arrays(rec.load_kN, rec.disp_mm, spec, rec.time_s)
+    # a dimensionless check value of the size the reviewer saw shown as 0.0000
+    result.checks.append(Check("small_ratio", True, 8.6391e-6, "x <= 0.001", "invented for this test"))
+    write_workbook(tmp_path / "n.xlsx", [(result, SimpleNamespace(load_kN=rec.load_kN, disp_mm=rec.disp_mm,
+                                                                   time_s=rec.time_s), spec)])
+    ws = openpyxl.load_workbook(tmp_path / "n.xlsx")["Checks"]
+    heads = [c.value for c in ws[1]]
+    col = {h: heads.index(h) + 1 for h in heads}
+    seen = set()
+    for row in range(2, ws.max_row + 1):
+        value = ws.cell(row=row, column=col["Value"])
+        name, unit = ws.cell(row=row, column=col["Check"]).value, ws.cell(row=row, column=col["Unit"]).value
+        if value.value is None:
+            continue
+        assert unit in ("mm", "MPa·√m/s", "ratio"), (name, unit)
+        if name in ("ligament_size", "thickness_size", "crack_length_size"):
+            assert unit == "mm"
+        # the number as Excel shows it keeps 4 significant digits whatever the magnitude
+        fmt = value.number_format
+        shown = (f"{value.value:.3E}" if "E" in fmt else f"{value.value:.{len(fmt.partition('.')[2])}f}")
+        assert float(shown) == pytest.approx(value.value, rel=1e-3), (name, value.value, fmt)
+        seen.add(fmt)
+    assert "0.000E+00" in seen and "0.00" in seen  # formats follow the magnitude: 8.611e-6 and 24.87 both read
 
 
 def test_formatted_for_people(book):

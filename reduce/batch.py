@@ -1,0 +1,349 @@
+"""Reducing many sheet rows at once: over the machine's cores, in order, with progress.
+
+Rows of a test sheet are independent, so :func:`reduce_rows` hands them to a
+pool of worker processes (:class:`concurrent.futures.ProcessPoolExecutor`;
+processes, not threads, because most of a row's time is Python code that
+holds the GIL).  Each worker runs :func:`reduce.pipeline.reduce_specimen`,
+the same function a sequential run calls, and the results are put back in
+sheet order, so a parallel run gives the same results, row for row, as
+``jobs=1``, which runs in this process.
+
+Nothing a row does stops the batch: errors the pipeline expects are already
+in ``Result.error``; any other exception in a worker becomes that row's
+error ("internal error while reducing: …"), and a worker process that dies
+(killed, out of memory) costs only the row it was reducing, which is tried
+once more on its own before it is reported.
+
+:func:`reduce_sheets` does this for several sheets, or folders of sheets,
+together (their rows share one pool) and says which sheet each result
+belongs to; a sheet that cannot be used at all is reported and the others
+are still reduced.
+"""
+
+from __future__ import annotations
+
+import os
+import sys
+from dataclasses import dataclass, field
+from pathlib import Path
+from typing import NamedTuple
+
+from reduce.errors import CracktipError, SheetError
+
+__all__ = ["BatchRow", "Batch", "available_cores", "find_sheets", "progress_wanted",
+           "reduce_rows", "reduce_sheets"]
+
+#: file types a folder is searched for; a file is a sheet when its header
+#: names these columns (the ones every sheet has, see reduce.sheet.REQUIRED)
+_SHEET_SUFFIXES = (".csv", ".tsv", ".txt", ".xlsx", ".xlsm")
+_SHEET_MARKS = frozenset({"specimen", "geometry", "record"})
+#: most rows sent to a worker at once
+_CHUNK_ROWS = 16
+
+
+class BatchRow(NamedTuple):
+    """One reduced row: its result, its record (or None), the row, and its sheet."""
+
+    result: object
+    record: object
+    row: object
+    sheet: str
+
+
+@dataclass
+class Batch:
+    """The outcome of :func:`reduce_sheets`.
+
+    Attributes
+    ----------
+    rows : list of BatchRow
+        Every row of every usable sheet, sheets in the order given, rows in
+        sheet order.
+    sheets : list of str
+        The sheets found, in that order.
+    errors : list of str
+        One message per sheet (or folder) that could not be used at all.
+    """
+
+    rows: list = field(default_factory=list)
+    sheets: list = field(default_factory=list)
+    errors: list = field(default_factory=list)
+
+    def triples(self) -> list:
+        """The rows as (Result, Record, row), the form :func:`reduce.pipeline.reduce_sheet` returns."""
+        return [(r.result, r.record, r.row) for r in self.rows]
+
+
+def available_cores() -> int:
+    """The number of cores this process may run on (at least 1)."""
+    try:
+        return max(len(os.sched_getaffinity(0)), 1)
+    except (AttributeError, OSError):
+        return max(os.cpu_count() or 1, 1)
+
+
+def progress_wanted(quiet: bool = False, stream=None) -> bool:
+    """A progress bar only on a terminal, and not when asked to be quiet."""
+    stream = sys.stderr if stream is None else stream
+    try:
+        return not quiet and stream.isatty()
+    except (AttributeError, ValueError):
+        return False
+
+
+def find_sheets(inputs) -> tuple[list[Path], list[str]]:
+    """The test sheets among files and folders.
+
+    A file given is taken as a sheet.  A folder is searched (with its
+    subfolders, in name order) for CSV, TSV, text and XLSX files whose first
+    line names the columns ``specimen``, ``geometry`` and ``record``; the
+    records beside the sheets do not.
+
+    Returns
+    -------
+    (list of Path, list of str)
+        The sheets, and one message per input that is missing or a folder
+        without sheets.
+    """
+    sheets, errors = [], []
+    for item in inputs:
+        path = Path(item)
+        if path.is_dir():
+            found = [p for p in sorted(path.rglob("*"))
+                     if p.suffix.lower() in _SHEET_SUFFIXES and p.is_file()
+                     and not any(part.startswith(".") for part in p.relative_to(path).parts)
+                     and _looks_like_sheet(p)]
+            if not found:
+                errors.append(f"{path}: no test sheet in this folder (a sheet is a CSV or XLSX "
+                              "file whose header names the columns specimen, geometry and record)")
+            sheets.extend(found)
+        elif path.is_file():
+            sheets.append(path)
+        else:
+            errors.append(f"{path}: the test sheet does not exist or is not a file")
+    return sheets, errors
+
+
+def _looks_like_sheet(path: Path) -> bool:
+    if path.suffix.lower() in (".xlsx", ".xlsm"):
+        return _xlsx_header_marks(path)
+    try:
+        with open(path, "rb") as f:
+            head = f.read(64 * 1024)
+    except OSError:
+        return False
+    if b"\x00" in head:
+        return False
+    text = head.decode("utf-8-sig", errors="replace")
+    first = next((line for line in text.splitlines() if line.strip()), "")
+    names = {name.strip().strip('"').strip() for sep in ",;\t" for name in first.split(sep)}
+    return _SHEET_MARKS <= names
+
+
+def _xlsx_header_marks(path: Path) -> bool:
+    from reduce.records import check_workbook
+
+    try:
+        check_workbook(path)  # the container limits of the record reader (ZIP bombs)
+        import openpyxl
+
+        book = openpyxl.load_workbook(path, read_only=True, data_only=True, keep_links=False)
+        try:
+            first = next(book.worksheets[0].iter_rows(max_row=1, values_only=True), ())
+        finally:
+            book.close()
+    except Exception:  # not a workbook we can read: then not a sheet either
+        return False
+    return _SHEET_MARKS <= {str(c).strip() for c in first if c is not None}
+
+
+def reduce_sheets(inputs, rules: str = "e399", *, jobs: int | None = None, progress: bool = False,
+                  keep_records: bool = True) -> Batch:
+    """Reduce every row of several sheets (or folders of sheets) together.
+
+    Parameters
+    ----------
+    inputs : iterable of str or Path
+        Sheets and folders (see :func:`find_sheets`).
+    rules : {"e399", "iso12737"}
+        The rule set.
+    jobs, progress, keep_records
+        As for :func:`reduce_rows`.
+
+    Returns
+    -------
+    Batch
+
+    Raises
+    ------
+    RulesError
+        For an unknown rule set (before any work is done).
+    """
+    from reduce import rules as R
+    from reduce.sheet import read_sheet
+
+    R.rule_set(rules)
+    paths, errors = find_sheets(inputs)
+    batch = Batch(errors=errors)
+    rows, sheet_of = [], []
+    for path in paths:
+        try:
+            sheet_rows = read_sheet(path)
+        except CracktipError as exc:
+            batch.errors.append(str(exc))
+            continue
+        except OSError as exc:
+            batch.errors.append(str(SheetError(f"cannot be read ({exc.strerror or exc})", file=str(path))))
+            continue
+        batch.sheets.append(str(path))
+        rows.extend(sheet_rows)
+        sheet_of.extend([str(path)] * len(sheet_rows))
+    done = reduce_rows(rows, rules, jobs=jobs, progress=progress, keep_records=keep_records)
+    batch.rows = [BatchRow(result, rec, row, sheet)
+                  for (result, rec), row, sheet in zip(done, rows, sheet_of)]
+    return batch
+
+
+def reduce_rows(rows, rules: str = "e399", *, jobs: int | None = None, progress: bool = False,
+                keep_records: bool = True) -> list:
+    """Reduce sheet rows, in parallel over ``jobs`` processes, in their order.
+
+    Parameters
+    ----------
+    rows : list of Specimen or BadRow
+        As :func:`reduce.sheet.read_sheet` returns them.
+    rules : {"e399", "iso12737"}
+        The rule set.
+    jobs : int, optional
+        Worker processes; None for every available core.  With 1 (or a
+        single row to reduce) the rows are reduced in this process.
+    progress : bool
+        Show a progress bar on standard error (see :func:`progress_wanted`).
+    keep_records : bool
+        Return the records read (reports draw them); False returns None in
+        their place and spares sending long records between processes.
+
+    Returns
+    -------
+    list of (Result, Record or None)
+        One per row, in the order of ``rows``.  A BadRow gives a result
+        carrying its error.  This function does not raise for bad data.
+    """
+    from reduce.pipeline import failed_result
+    from reduce.sheet import BadRow
+
+    out = [None] * len(rows)
+    todo = []
+    for i, row in enumerate(rows):
+        if isinstance(row, BadRow):
+            out[i] = (failed_result(row.specimen, rules, row.error, heat=row.heat,
+                                    geometry=row.geometry, record=row.record), None)
+        else:
+            todo.append(i)
+    workers = min(available_cores() if jobs is None else max(int(jobs), 1), len(todo))
+    bar = _Progress(len(rows), progress)
+    bar.update(len(rows) - len(todo))
+    try:
+        if workers <= 1:
+            for i in todo:
+                out[i] = reduce_guarded(rows[i], rules, keep_records)
+                bar.update(1)
+        else:
+            _in_pool(rows, todo, out, rules, keep_records, workers, bar)
+    finally:
+        bar.close()
+    return out
+
+
+def reduce_guarded(row, rules: str, keep_record: bool = True):
+    """:func:`reduce.pipeline.reduce_specimen`, with any unexpected exception made the row's error."""
+    from reduce.pipeline import reduce_specimen
+
+    try:
+        result, rec = reduce_specimen(row, rules)
+    except Exception as exc:  # the whole-row guard: a bug must not stop the batch
+        return (_internal_error(row, rules, f"{type(exc).__name__}: {exc}"), None)
+    return result, (rec if keep_record else None)
+
+
+def _internal_error(row, rules, what):
+    from reduce.pipeline import failed_result
+
+    return failed_result(getattr(row, "specimen", "?"), rules,
+                         f"internal error while reducing: {what}",
+                         heat=getattr(row, "heat", None), geometry=getattr(row, "geometry", None),
+                         record=getattr(row, "record", None))
+
+
+def _pool(workers):
+    import multiprocessing
+    from concurrent.futures import ProcessPoolExecutor
+
+    # fork starts a worker in milliseconds with the modules already imported;
+    # this process has no other threads when the pool starts (see _in_pool)
+    methods = multiprocessing.get_all_start_methods()
+    context = multiprocessing.get_context("fork" if "fork" in methods else None)
+    return ProcessPoolExecutor(max_workers=workers, mp_context=context)
+
+
+def _reduce_chunk(rows, rules, keep_records):
+    return [reduce_guarded(row, rules, keep_records) for row in rows]
+
+
+def _in_pool(rows, todo, out, rules, keep_records, workers, bar):
+    from concurrent.futures import as_completed
+    from concurrent.futures.process import BrokenProcessPool
+
+    # a few rows per task: fewer messages between the processes, and still
+    # several tasks per worker so that long and short rows even out
+    size = max(1, min(_CHUNK_ROWS, len(todo) // (4 * workers)))
+    chunks = [todo[k:k + size] for k in range(0, len(todo), size)]
+    lost = []
+    with _pool(workers) as pool:
+        futures = {pool.submit(_reduce_chunk, [rows[i] for i in chunk], rules, keep_records): chunk
+                   for chunk in chunks}
+        for future in as_completed(futures):
+            chunk = futures[future]
+            try:
+                for i, done in zip(chunk, future.result(), strict=True):
+                    out[i] = done
+            except BrokenProcessPool:
+                lost.extend(chunk)
+                continue
+            except Exception as exc:  # e.g. a result that cannot be sent back
+                for i in chunk:
+                    out[i] = (_internal_error(rows[i], rules, f"{type(exc).__name__}: {exc}"), None)
+            bar.update(len(chunk))
+    # a worker died: every row it had not finished is tried again, alone, so
+    # only the row that kills a worker is lost
+    for i in sorted(lost):
+        try:
+            with _pool(1) as pool:
+                out[i] = pool.submit(reduce_guarded, rows[i], rules, keep_records).result()
+        except BrokenProcessPool:
+            out[i] = (_internal_error(rows[i], rules, "the worker process stopped while reducing "
+                                      "this row (out of memory, or killed)"), None)
+        except Exception as exc:
+            out[i] = (_internal_error(rows[i], rules, f"{type(exc).__name__}: {exc}"), None)
+        bar.update(1)
+
+
+class _Progress:
+    """A tqdm bar on standard error, or nothing."""
+
+    def __init__(self, total, enabled):
+        self._bar = None
+        if enabled and total:
+            from tqdm import tqdm
+
+            tqdm.monitor_interval = 0  # no monitor thread (worker processes are forked)
+            self._bar = tqdm(total=total, unit="row", desc="reducing", file=sys.stderr,
+                             leave=False, dynamic_ncols=True)
+
+    def update(self, n):
+        if self._bar is not None and n:
+            self._bar.update(n)
+
+    def close(self):
+        if self._bar is not None:
+            self._bar.close()
