@@ -107,3 +107,21 @@ def test_other_curve_family_stopped_before_secant_is_type_III():
     res = secant_construction(load, disp)
     assert res.curve_type == "III"
     assert res.P_Q == pytest.approx(15.0, rel=0.01)
+
+
+def test_record_far_beyond_P_Q_refits_the_slope_low():
+    # regression: a tough, gradually bending record loaded to 2.2 P_5 had its fit
+    # bands (scaled by P_max) in the curved part, and P_Q came out 24 % high
+    load, disp, P5 = _power_law_record(n_exp=3.0, c=0.04, P_end=30.0, noise=0.0)
+    res = secant_construction(load, disp)
+    assert res.curve_type == "I"
+    assert res.P_Q == pytest.approx(P5, rel=0.02)
+
+
+def test_pop_in_P_Q_is_the_raw_peak():
+    # regression: P_Q was taken one sample before the pop-in peak, because the
+    # smoothed secant crossing lies a few samples before the raw jump
+    rec = make_record("II", noise_kN=0.0)
+    res = secant_construction(rec.load_kN, rec.disp_mm)
+    assert res.curve_type == "II"
+    assert res.P_Q == pytest.approx(rec.P_Q, rel=1e-9)
