@@ -129,8 +129,13 @@ def main(argv=None) -> int:
     except CracktipError as exc:
         print(f"cracktip: {exc}", file=sys.stderr)
         return EXIT_BAD_INPUT
+    except BrokenPipeError:
+        # the reader of our output went away (e.g. `| head`): stop quietly
+        sys.stderr.close()
+        return EXIT_OK
     except OSError as exc:
-        print(f"cracktip: {exc.filename or ''}: {exc.strerror or exc}", file=sys.stderr)
+        where = f"{exc.filename}: " if exc.filename else ""
+        print(f"cracktip: {where}{exc.strerror or exc}", file=sys.stderr)
         return EXIT_BAD_INPUT
 
 

@@ -1269,6 +1269,29 @@ def _bad_row_notes(good, used, n, rows):
     return notes
 
 
+def _positive_sense(load, disp, choice, notes):
+    """Load and opening as positive numbers, whatever sign the rig writes.
+
+    Many frames write a compressive (bend) load or a closing gauge as
+    negative.  A load channel whose largest magnitude is negative is reversed,
+    and so is a displacement that falls while the load rises to its peak;
+    each reversal is noted.
+    """
+    if load.size and -float(load.min()) > float(load.max()):
+        load = np.negative(load)
+        load.flags.writeable = False
+        notes.append(f"load channel '{choice.load.column.header}' is negative (compression "
+                     "counted negative by the rig): its sign was reversed")
+    if load.size:
+        i_peak = int(np.argmax(load))
+        if float(disp[i_peak]) < float(disp[0]) and float(np.median(disp[: i_peak + 1])) < float(disp[0]):
+            disp = np.negative(disp)
+            disp.flags.writeable = False
+            notes.append(f"displacement channel '{choice.disp.column.header}' decreases as the load "
+                         "rises: its sign was reversed")
+    return load, disp
+
+
 def _finish(path, digest, columns, choice, values, rows, notes):
     notes = list(notes) + choice.notes
     load = values[choice.load.column.index]
@@ -1312,10 +1335,12 @@ def _finish(path, digest, columns, choice, values, rows, notes):
     if time is not None:
         time_s = _converted(time, n, good, choice.time.factor)
         notes += _time_notes(time_s)
+    load_kN, disp_mm = _positive_sense(_converted(load, n, good, choice.load.factor),
+                                       _converted(disp, n, good, choice.disp.factor), choice, notes)
     return Record(
         path=path,
-        load_kN=_converted(load, n, good, choice.load.factor),
-        disp_mm=_converted(disp, n, good, choice.disp.factor),
+        load_kN=load_kN,
+        disp_mm=disp_mm,
         time_s=time_s,
         load_header=choice.load.column.header,
         disp_header=choice.disp.column.header,

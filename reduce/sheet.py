@@ -100,8 +100,15 @@ def _read_rows(path: Path) -> tuple[list[str], list[list[str]]]:
 def _read_xlsx(path: Path):
     import openpyxl  # loaded only for workbooks
 
+    from reduce.errors import RecordError
+    from reduce.records import check_workbook
+
+    try:  # the same container checks as for records: no ZIP bomb, hardened XML
+        check_workbook(path)
+    except RecordError as exc:
+        raise SheetError(exc.problem, file=str(path)) from None
     try:
-        wb = openpyxl.load_workbook(path, read_only=True, data_only=True)
+        wb = openpyxl.load_workbook(path, read_only=True, data_only=True, keep_links=False)
     except Exception as exc:  # openpyxl raises many types for a bad file
         raise SheetError(f"cannot open the workbook: {exc}", file=str(path)) from None
     try:

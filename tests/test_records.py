@@ -543,8 +543,10 @@ def test_round_trip_of_any_numbers(tmp_path_factory, pairs, layout):
     header = "Load (kN)" + ("  " if sep == " " else sep) + "COD (mm)\n"
     path.write_text(header + table([load, disp], sep, decimal, n=len(pairs)))
     rec = read_record(str(path))
-    np.testing.assert_array_equal(rec.load_kN, load)
-    np.testing.assert_array_equal(rec.disp_mm, disp)
+    # the values come back as written, or with the sign reversed and a note saying so
+    for got, wrote, word in ((rec.load_kN, load, "load channel"), (rec.disp_mm, disp, "displacement channel")):
+        reversed_ = any(n.startswith(word) and "sign was reversed" in n for n in rec.notes)
+        np.testing.assert_array_equal(got, -wrote if reversed_ else wrote)
 
 
 @settings(max_examples=40, deadline=None, database=None)
@@ -557,3 +559,23 @@ def test_any_bytes_give_a_record_or_a_record_error(tmp_path_factory, data):
     except RecordError:
         return
     assert rec.load_kN.size == rec.disp_mm.size >= 20
+
+
+def test_negative_load_and_closing_gauge_are_reversed(tmp_path):
+    # a bend frame that writes compression and a gauge that closes as negative numbers
+    # (regression: such a record had "no linear rising part")
+    import numpy as np
+    from reduce.pipeline import reduce_arrays
+    from reduce.models import Specimen
+    from reduce.synthetic import make_record
+
+    rec = make_record("I", noise_kN=0.01, seed=2)
+    lines = ["Force (kN),CMOD (mm)"] + [f"{-P:.6f},{-v:.6f}" for P, v in zip(rec.load_kN, rec.disp_mm)]
+    (tmp_path / "neg.csv").write_text("\n".join(lines) + "\n")
+    r = read_record(tmp_path / "neg.csv")
+    assert r.load_kN.max() > 0 and r.disp_mm[np.argmax(r.load_kN)] > r.disp_mm[0]
+    assert any("sign was reversed" in n for n in r.notes) and len(r.notes) >= 2
+    spec = Specimen("N1", "C(T)", B=25, W=50, a_readings=(25, 25, 25), yield_MPa=500, E_MPa=205000)
+    plain = reduce_arrays(rec.load_kN, rec.disp_mm, spec)
+    flipped = reduce_arrays(r.load_kN, r.disp_mm, spec)
+    assert flipped.P_Q_kN == pytest.approx(plain.P_Q_kN, rel=1e-5)

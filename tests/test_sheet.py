@@ -108,3 +108,15 @@ def test_knife_edge_height_reaches_the_dimensions(tmp_path, ct_row):
     assert s.dims["z"] == 1.5
     rows = read_sheet(write_sheet(tmp_path / "t.csv", [dict(ct_row, z_in=-0.1)]))
     assert isinstance(rows[0], BadRow) and rows[0].error.column == "z_in"
+
+
+def test_xlsx_sheet_zip_bomb_is_refused(tmp_path):
+    # regression: test sheets were opened without the container checks records get
+    import zipfile
+
+    bomb = tmp_path / "bomb.xlsx"
+    with zipfile.ZipFile(bomb, "w", compression=zipfile.ZIP_DEFLATED) as z:
+        z.writestr("[Content_Types].xml", "<Types/>")
+        z.writestr("xl/worksheets/sheet1.xml", b"\0" * (40 * 1024 * 1024))
+    with pytest.raises(SheetError, match="bomb.xlsx"):
+        read_sheet(bomb)
