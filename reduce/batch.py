@@ -290,14 +290,26 @@ def _reduce_chunk(rows, rules, keep_records):
     return [reduce_guarded(row, rules, keep_records) for row in rows]
 
 
+def _chunks(todo, workers):
+    """The row indices cut into tasks that shrink towards the end.
+
+    A few rows per task: fewer messages between the processes.  Each task
+    is at most a quarter of the rows left per worker, so the last tasks hold
+    one row and no worker waits long for another to finish its last task.
+    """
+    chunks, k = [], 0
+    while k < len(todo):
+        size = max(1, min(_CHUNK_ROWS, (len(todo) - k) // (4 * workers)))
+        chunks.append(todo[k:k + size])
+        k += size
+    return chunks
+
+
 def _in_pool(rows, todo, out, rules, keep_records, workers, bar):
     from concurrent.futures import as_completed
     from concurrent.futures.process import BrokenProcessPool
 
-    # a few rows per task: fewer messages between the processes, and still
-    # several tasks per worker so that long and short rows even out
-    size = max(1, min(_CHUNK_ROWS, len(todo) // (4 * workers)))
-    chunks = [todo[k:k + size] for k in range(0, len(todo), size)]
+    chunks = _chunks(todo, workers)
     lost = []
     with _pool(workers) as pool:
         futures = {pool.submit(_reduce_chunk, [rows[i] for i in chunk], rules, keep_records): chunk

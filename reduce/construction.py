@@ -125,11 +125,14 @@ def smoothing_window(n: int) -> int:
     return w if w % 2 else w + 1 if w > 1 else 1
 
 
-def moving_average(x: np.ndarray, w: int) -> np.ndarray:
-    """Centred moving average of width w (odd); shorter windows at the ends."""
+def moving_average(x: np.ndarray, w: int, start: int = 0) -> np.ndarray:
+    """Centred moving average of width w (odd); shorter windows at the ends.
+
+    Only the means of samples ``start`` onwards are returned (all by default).
+    """
     if w <= 1:
-        return x
-    return _centred_means(x, w // 2, 0, x.size)
+        return x[start:]
+    return _centred_means(x, w // 2, start, x.size)
 
 
 def _centred_means(x, h, a, b):
@@ -248,19 +251,29 @@ def _checked(load, disp):
     return load, disp
 
 
+def _dot(x, y) -> float:
+    """x · y of two 1-D arrays in this thread.
+
+    Not ``x @ y``: the BLAS dot hands long vectors to its own threads, and
+    when the other core is busy (the record's hash runs beside the
+    reduction, reduce.records) it waits for them, a hundred times slower.
+    """
+    return float(np.einsum("i,i->", x, y))
+
+
 def _fit_line(v, P):
     n = v.size
     vm, Pm = float(v.mean()), float(P.mean())
     dv = v - vm
-    sxx = float(dv @ dv)
+    sxx = _dot(dv, dv)
     if not sxx > n * (_CONSTANT_REL * vm) ** 2:  # v constant but for rounding
         return None
     dP = P - Pm
-    k = float(dv @ dP) / sxx
+    k = _dot(dv, dP) / sxx
     c = Pm - k * vm
     resid = dP - k * dv
-    ss_res = float(resid @ resid)
-    ss_tot = float(dP @ dP)
+    ss_res = _dot(resid, resid)
+    ss_tot = _dot(dP, dP)
     r2 = 1.0 - ss_res / ss_tot if ss_tot > 0 else 0.0
     sd = (ss_res / max(n - 2, 1)) ** 0.5
     if not all(math.isfinite(x) for x in (k, c, r2, sd)):
@@ -376,7 +389,10 @@ def _narrowed_band(load, disp, P_ref, reach, lo, hi, i0, i_hi, out):
     for width in _NARROW_WIDTHS:
         keep = np.ones(i_hi - i0, dtype=bool)
         keep[out - i0] = False
-        t = _curvature_t(disp[i0:i_hi][keep], load[i0:i_hi][keep])
+        # the samples _curvature_t keeps of the band, taken without copying the band
+        kept = i0 + np.flatnonzero(keep)
+        kept = kept[::max(1, kept.size // _CURVATURE_SAMPLES)]
+        t = _curvature_t(disp[kept], load[kept])
         # displacement growing faster than linear in load: the band reaches the curved part
         if t <= _CURVATURE_T:
             break
@@ -399,10 +415,10 @@ def _slope_from_sums(v, P, i0, i1, out):
     if n < _MIN_FIT_POINTS:
         return None
     vs, Ps = v[i0:i1], P[i0:i1]
-    sv, sP, svv, svP = float(vs.sum()), float(Ps.sum()), float(vs @ vs), float(vs @ Ps)
+    sv, sP, svv, svP = float(vs.sum()), float(Ps.sum()), _dot(vs, vs), _dot(vs, Ps)
     if out.size:
         vo, Po = v[out], P[out]
-        sv, sP, svv, svP = sv - vo.sum(), sP - Po.sum(), svv - vo @ vo, svP - vo @ Po
+        sv, sP, svv, svP = sv - vo.sum(), sP - Po.sum(), svv - _dot(vo, vo), svP - _dot(vo, Po)
     sxx = float(svv - sv * sv / n)
     if not sxx > n * (_SUMS_CONSTANT_REL * sv / n) ** 2:  # v constant but for the sums' rounding
         return None
@@ -584,22 +600,23 @@ def _load_falls(load, drop) -> bool:
 
 
 def _is_end_of_test(load, disp, j, P_cross, slope, w) -> bool:
-    """Does the crossing at sample j lie on the final drop (fracture or unloading)?
+    """Does the crossing at sample j lie on the end of the test, not on the loading?
 
-    The load then falls below half the crossing load within three samples, or
-    before the displacement has advanced by the elastic displacement of the
-    crossing load, and never comes back.
+    It does when the load never again reaches the crossing load (beyond the
+    samples the smoothing at j already saw) and the record at the crossing is
+    not advancing: the displacement runs back (an unloading) or the load
+    falls faster than the elastic line would unload it, -dP > k·dv (a
+    fracture).  A crossing while the opening grows, on the rising or the
+    falling branch or at a pop-in, is a genuine P_5.
     """
-    tail = load[j:]
-    below = np.nonzero(tail < 0.5 * P_cross)[0]
-    if below.size == 0:
+    n, h = load.size, w // 2
+    later = load[min(j + h + 1, n - 1):]
+    if later.size and float(later.max()) >= P_cross:
         return False
-    m = j + int(below[0])
-    if load[m:].max() >= P_cross:
-        return False
-    quick = (m - (j - 1)) <= 3 + w
-    short = (disp[m] - disp[j - 1]) < P_cross / slope
-    return bool(quick or short)
+    i0, i1 = max(j - h - 1, 0), min(j + h, n - 1)
+    dP, dv = float(load[i1] - load[i0]), float(disp[i1] - disp[i0])
+    advancing = dv > 0.0 and -dP < slope * dv
+    return not advancing
 
 
 def _first_crossing(load, disp, ks, v0, start, w):
@@ -765,7 +782,9 @@ def loading_rate(load: np.ndarray, time: np.ndarray, fit: LinearFit) -> float | 
     t = np.asarray(time[i0:i1], dtype=float)
     P = np.asarray(load[i0:i1], dtype=float)
     ok = np.isfinite(t) & np.isfinite(P)
-    if ok.sum() < 2 or np.ptp(t[ok]) <= 0.0:
+    if not ok.all():  # copies only when some stamps are missing
+        t, P = t[ok], P[ok]
+    if t.size < 2 or np.ptp(t) <= 0.0:
         return None
-    fitted = _fit_line(t[ok], P[ok])
+    fitted = _fit_line(t, P)
     return None if fitted is None else fitted[0]

@@ -168,16 +168,17 @@ def _instability_index(load: np.ndarray, v: np.ndarray, slope: float) -> int | N
     i_max = int(np.argmax(load))
     if n < 2:
         return None
-    later_max = np.full(n, -np.inf)
-    later_max[:-1] = np.maximum.accumulate(load[::-1])[::-1][1:]
+    # the drop starts at or after P_max: only the samples from there are searched
+    tail = load[i_max:]
+    later_max = np.full(tail.size, -np.inf)
+    later_max[:-1] = np.maximum.accumulate(tail[::-1])[::-1][1:]
     P_max = float(load[i_max])
-    ok = (later_max < _DROP_FRACTION * load) & (load >= _MIN_FRACTION_OF_PMAX * P_max)
+    ok = (later_max < _DROP_FRACTION * tail) & (tail >= _MIN_FRACTION_OF_PMAX * P_max)
     ok[-1] = False
-    ok[:i_max] = False
     cand = np.nonzero(ok)[0]
     if cand.size == 0:
         return None
-    i = int(cand[0])
+    i = i_max + int(cand[0])
     while i > i_max and load[i - 1] - load[i] > _STEEP_STEP * load[i - 1]:
         i -= 1
     m = i + 1 + int(np.nonzero(load[i + 1:] < _DROP_FRACTION * load[i])[0][0])
@@ -227,17 +228,32 @@ def load_fall_after_maximum(load_kN, v_mm, noise_sd_kN: float = 0.0) -> float | 
     load = np.asarray(load_kN, dtype=float)
     v = np.asarray(v_mm, dtype=float)
     w = smoothing_window(load.size)
-    smooth = moving_average(load, w)
-    i = int(np.argmax(smooth))
-    top = float(smooth[i])
+    start = _smoothed_max_start(load, w // 2)
+    smooth = moving_average(load, w, start)  # samples start, start + 1, ...
+    i = start + int(np.argmax(smooth))
+    top = float(smooth[i - start])
     beyond = v[i + 1:] > v[i]
     if not (top > 0.0 and beyond.any()):
         return None
-    low = float(smooth[i + 1:][beyond].min())
+    low = float(smooth[i - start + 1:][beyond].min())
     # the end windows are clipped to half their width: their standard error is the larger
     need = max(_limits()["events"]["min_fall_fraction"] * top,
                _FALL_SIGMAS * noise_sd_kN / math.sqrt(w // 2 + 1))
     return (top - low) / top if top - low > need else None
+
+
+def _smoothed_max_start(load, h):
+    """A sample at or before the maximum of the load smoothed over 2h + 1 samples.
+
+    A mean never exceeds the largest sample in its window: no window that
+    ends before the first sample reaching the smoothed load at the raw
+    maximum can hold the smoothed maximum, so the smoothing starts there.
+    """
+    if h == 0 or load.size == 0:
+        return 0
+    j = int(np.argmax(load))
+    level = float(np.mean(load[max(j - h, 0):j + h + 1]))
+    return max(int(np.argmax(load >= level)) - h, 0)
 
 
 def point_of_interest(load_kN, v_mm, slope: float, *, pop_in_index: int | None = None,
@@ -340,8 +356,9 @@ def work_under_record(load_kN, v_mm, i_end: int, i_join: int = 0) -> float:
     if not 0 <= i_join <= i_end < P.size:
         raise ElasticPlasticError(f"cannot integrate from sample {i_join} to {i_end} of {P.size}")
     seg_P, seg_v = P[i_join:i_end + 1], v[i_join:i_end + 1]
-    trapezoids = 0.5 * (seg_P[1:] + seg_P[:-1]) * np.diff(seg_v)
-    return float(0.5 * P[i_join] * v[i_join] + trapezoids.sum())
+    # einsum, not @: the BLAS dot's threads wait on a busy core (reduce.construction._dot)
+    trapezoids = 0.5 * float(np.einsum("i,i->", seg_P[1:] + seg_P[:-1], np.diff(seg_v)))
+    return float(0.5 * P[i_join] * v[i_join] + trapezoids)
 
 
 def plastic_work(load_kN, v_mm, i_end: int, slope: float, i_join: int = 0) -> tuple[float, float]:

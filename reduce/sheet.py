@@ -162,13 +162,6 @@ def read_sheet(path) -> list:
             raise SheetError("the column appears twice in the header", file=sheet, row=1, column=name)
         columns[name] = _split_column(name)
     given = {sym for sym, _ in filter(None, columns.values())} | set(columns)
-    symbols_seen: dict[str, str] = {}
-    for name, su in columns.items():
-        if su:
-            if su[0] in symbols_seen:
-                raise SheetError(f"{su[0]} is given twice, as '{symbols_seen[su[0]]}' and '{name}'; "
-                                 "keep one", file=sheet, row=1, column=name)
-            symbols_seen[su[0]] = name
     missing = [c for c in REQUIRED if c not in given]
     if missing:
         hint = ", ".join(f"{m}_<unit>" if m in QUANTITIES else m for m in missing)
@@ -196,6 +189,7 @@ def _row_to_specimen(values: dict, columns: dict, sheet: str, row: int) -> Speci
     q: dict[str, float] = {}
     text: dict[str, str] = {}
     meta: dict[str, str] = {}
+    source: dict[str, str] = {}  # symbol -> the column its value came from
     for name, raw in values.items():
         su = columns.get(name)
         if su:
@@ -207,7 +201,11 @@ def _row_to_specimen(values: dict, columns: dict, sheet: str, row: int) -> Speci
                 x = fahrenheit_to_celsius(x) if unit == "F" else x
             else:
                 x *= QUANTITIES[symbol][unit]
+            if symbol in q:  # e.g. W_mm and W_in both filled in
+                raise SheetError(f"{symbol} is given twice in this row, in '{source[symbol]}' and "
+                                 f"'{name}'; keep one", file=sheet, row=row, column=name, value=raw)
             q[symbol] = x
+            source[symbol] = name
         elif name in TEXT_COLUMNS:
             if raw != "":
                 text[name] = raw
@@ -218,7 +216,7 @@ def _row_to_specimen(values: dict, columns: dict, sheet: str, row: int) -> Speci
             meta[name] = raw
 
     def col(symbol):
-        return next((n for n, su in columns.items() if su and su[0] == symbol), symbol)
+        return source.get(symbol) or next((n for n, su in columns.items() if su and su[0] == symbol), symbol)
 
     for req in REQUIRED:
         if req not in q and req not in text:

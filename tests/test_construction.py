@@ -125,3 +125,31 @@ def test_pop_in_P_Q_is_the_raw_peak():
     res = secant_construction(rec.load_kN, rec.disp_mm)
     assert res.curve_type == "II"
     assert res.P_Q == pytest.approx(rec.P_Q, rel=1e-9)
+
+
+def _with_final_unload(load, disp, k):
+    """Append an elastic unloading to zero load along the initial slope k."""
+    P_end, v_end = load[-1], disp[-1]
+    P_un = np.linspace(P_end, 0.0, 60)[1:]
+    return np.concatenate([load, P_un]), np.concatenate([disp, v_end - (P_end - P_un) / k])
+
+
+@pytest.mark.parametrize("kind", ["I", "II"])
+def test_final_unloading_does_not_hide_P5(kind):
+    # regression: a record still rising when the operator unloads was taken as
+    # Type III with P_Q = P_max, because the crossing looked like the end of the test
+    rec = make_record(kind, noise_kN=0.02, seed=3)
+    load, disp = _with_final_unload(rec.load_kN, rec.disp_mm, 40.0)
+    res = secant_construction(load, disp)
+    assert res.curve_type == kind
+    assert res.P_Q == pytest.approx(rec.P_Q, rel=0.01)
+
+
+def test_unloading_before_the_secant_gives_no_P5_from_the_unloading_line():
+    # stopped at 80 % of P_5 and unloaded: the unloading line crosses the secant,
+    # but that is not P_5
+    rec = make_record("I", overshoot=0.8)
+    load, disp = _with_final_unload(rec.load_kN, rec.disp_mm, 40.0)
+    res = secant_construction(load, disp)
+    assert res.P_5 is None and res.curve_type == "III"
+    assert res.P_Q == pytest.approx(rec.load_kN.max(), rel=1e-9)

@@ -72,9 +72,16 @@ def test_missing_required_column_is_a_sheet_error(tmp_path, ct_row):
         read_sheet(write_sheet(tmp_path / "s.csv", [ct_row]))
 
 
-def test_quantity_in_two_units_is_refused(tmp_path, ct_row):
-    with pytest.raises(SheetError, match="given twice"):
-        read_sheet(write_sheet(tmp_path / "s.csv", [dict(ct_row, W_in=2)]))
+def test_quantity_in_two_units_is_refused_in_that_row(tmp_path, ct_row):
+    rows = read_sheet(write_sheet(tmp_path / "s.csv", [dict(ct_row, W_in=2), dict(ct_row, specimen="T2", W_in="")]))
+    assert isinstance(rows[0], BadRow) and "given twice" in str(rows[0].error)
+    assert rows[0].error.column == "W_in" and rows[0].error.row == 2
+
+
+def test_empty_column_in_other_unit_is_harmless(tmp_path, ct_row):
+    # regression: an empty B_in column beside B_mm rejected the whole sheet
+    (s,) = read_sheet(write_sheet(tmp_path / "s.csv", [dict(ct_row, B_in="")]))
+    assert s.B == 25
 
 
 def test_xlsx_sheet(tmp_path, ct_row):
