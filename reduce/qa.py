@@ -477,40 +477,23 @@ def cmd_trend(args) -> int:
     return 0
 
 
-def fraction(text: str) -> float:
-    """An argparse type: a number strictly between 0 and 1.
-
-    >>> fraction("0.9")
-    0.9
-    """
-    try:
-        x = float(text)
-    except ValueError:
-        x = math.nan
-    if not 0.0 < x < 1.0:
-        raise argparse.ArgumentTypeError(f"expected a fraction between 0 and 1 (exclusive), e.g. 0.95; "
-                                         f"got {text!r}")
-    return x
+def _number_type(accept, expected: str):
+    """An argparse type: a number for which ``accept(x)`` holds, else a message naming it."""
+    def parse(text: str) -> float:
+        try:
+            x = float(text)
+        except ValueError:
+            x = math.nan
+        if not accept(x):
+            raise argparse.ArgumentTypeError(f"expected {expected}; got {text!r}")
+        return x
+    return parse
 
 
-def _band(text: str) -> float:
-    try:
-        x = float(text)
-    except ValueError:
-        x = math.nan
-    if not (math.isfinite(x) and x >= 0.0):
-        raise argparse.ArgumentTypeError(f"expected a temperature band of zero or more °C, got {text!r}")
-    return x
-
-
-def _celsius(text: str) -> float:
-    try:
-        x = float(text)
-    except ValueError:
-        x = math.nan
-    if not math.isfinite(x):
-        raise argparse.ArgumentTypeError(f"expected a test temperature in °C, got {text!r}")
-    return x
+#: an argparse type: a number strictly between 0 and 1 (``fraction("0.9")`` is 0.9)
+fraction = _number_type(lambda x: 0.0 < x < 1.0, "a fraction between 0 and 1 (exclusive), e.g. 0.95")
+_band = _number_type(lambda x: math.isfinite(x) and x >= 0.0, "a temperature band of zero or more °C")
+_celsius = _number_type(math.isfinite, "a test temperature in °C")
 
 
 def add_trend_command(sub) -> None:
