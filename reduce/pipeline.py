@@ -305,15 +305,11 @@ def reduce_sheet(path, rules: str = "e399") -> list:
     RulesError
         For an unknown rule set.
     """
-    from reduce.sheet import BadRow, read_sheet
+    from reduce.batch import reduce_rows
+    from reduce.sheet import read_sheet
 
     R.rule_set(rules)
-    out = []
-    for row in read_sheet(path):
-        if isinstance(row, BadRow):
-            out.append((failed_result(row.specimen, rules, row.error, heat=row.heat,
-                                      geometry=row.geometry, record=row.record), None, row))
-            continue
-        result, rec = reduce_specimen(row, rules)
-        out.append((result, rec, row))
-    return out
+    rows = read_sheet(path)
+    # in this process, with the batch runner's handling of bad rows and its whole-row guard
+    done = reduce_rows(rows, rules, jobs=1)
+    return [(result, rec, row) for (result, rec), row in zip(done, rows)]
