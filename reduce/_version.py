@@ -1,7 +1,7 @@
 """The program's version, and the version that identifies the exact code.
 
 ``__version__`` is the release number.  ``PROGRAM_VERSION`` adds a digest of
-the program's own source and data files (the three packages' ``.py`` and
+the program's own source and data files (the three packages' ``.py``, ``.c`` and
 ``.toml`` files), so the store and every certificate can tell two builds of
 the same release apart.
 """
@@ -18,10 +18,17 @@ def source_digest() -> str:
     h = hashlib.sha256()
     for package in ("specimens", "reduce", "reports"):
         for path in sorted((root / package).glob("*")):
-            if path.suffix in (".py", ".toml") and path.is_file():
+            if path.suffix in (".py", ".toml", ".c") and path.is_file():
                 h.update(f"{package}/{path.name}\0".encode())
                 h.update(path.read_bytes())
     return h.hexdigest()[:12]
 
 
-PROGRAM_VERSION = f"{__version__}+src.{source_digest()}"
+def __getattr__(name):
+    # PROGRAM_VERSION is worked out when first asked for (it reads every source
+    # file), not on import: `cracktip reduce` starts without it
+    if name == "PROGRAM_VERSION":
+        value = f"{__version__}+src.{source_digest()}"
+        globals()[name] = value
+        return value
+    raise AttributeError(f"module {__name__!r} has no attribute {name!r}")

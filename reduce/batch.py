@@ -1,9 +1,10 @@
 """Reducing many sheet rows at once: over the machine's cores, in order, with progress.
 
-Rows of a test sheet are independent, so :func:`reduce_rows` hands them to a
-pool of worker processes (:class:`concurrent.futures.ProcessPoolExecutor`;
-processes, not threads, because most of a row's time is Python code that
-holds the GIL).  Each worker runs :func:`reduce.pipeline.reduce_specimen`,
+Rows of a test sheet are independent, so :func:`reduce_rows` hands them to
+worker processes (forked children that take tasks from a pipe, see
+:func:`_forked`, or a :class:`concurrent.futures.ProcessPoolExecutor` where
+the machine cannot fork; processes, not threads, because most of a row's
+time is Python code that holds the GIL).  Each worker runs :func:`reduce.pipeline.reduce_specimen`,
 the same function a sequential run calls, and the results are put back in
 sheet order, so a parallel run gives the same results, row for row, as
 ``jobs=1``, which runs in this process.
@@ -23,6 +24,7 @@ are still reduced.
 from __future__ import annotations
 
 import os
+import signal
 import sys
 from dataclasses import dataclass, field
 from pathlib import Path
@@ -39,6 +41,8 @@ _SHEET_SUFFIXES = (".csv", ".tsv", ".txt", ".xlsx", ".xlsm")
 _SHEET_MARKS = frozenset({"specimen", "geometry", "record"})
 #: most rows sent to a worker at once
 _CHUNK_ROWS = 16
+#: workers are forked children where the machine can fork (see _forked), else an executor's
+_CAN_FORK = hasattr(os, "fork")
 
 
 class BatchRow(NamedTuple):
@@ -279,8 +283,7 @@ def _pool(workers):
     import multiprocessing
     from concurrent.futures import ProcessPoolExecutor
 
-    # fork starts a worker in milliseconds with the modules already imported;
-    # this process has no other threads when the pool starts (see _in_pool)
+    # where this machine cannot fork (see _in_pool); fork where it exists
     methods = multiprocessing.get_all_start_methods()
     context = multiprocessing.get_context("fork" if "fork" in methods else None)
     return ProcessPoolExecutor(max_workers=workers, mp_context=context)
@@ -306,10 +309,23 @@ def _chunks(todo, workers):
 
 
 def _in_pool(rows, todo, out, rules, keep_records, workers, bar):
+    chunks = _chunks(todo, workers)
+    run = _forked if _CAN_FORK else _in_executor
+    lost = run(rows, chunks, out, rules, keep_records, workers, bar)
+    # a worker died: every row it had not finished is tried again, alone, so
+    # only the row that kills a worker is lost
+    for i in sorted(lost):
+        if run(rows, [[i]], out, rules, keep_records, 1, bar):
+            out[i] = (_internal_error(rows[i], rules, "the worker process stopped while reducing "
+                                      "this row (out of memory, or killed)"), None)
+            bar.update(1)
+
+
+def _in_executor(rows, chunks, out, rules, keep_records, workers, bar):
+    """The tasks in a ProcessPoolExecutor; returns the rows of tasks lost with a worker."""
     from concurrent.futures import as_completed
     from concurrent.futures.process import BrokenProcessPool
 
-    chunks = _chunks(todo, workers)
     lost = []
     with _pool(workers) as pool:
         futures = {pool.submit(_reduce_chunk, [rows[i] for i in chunk], rules, keep_records): chunk
@@ -317,27 +333,155 @@ def _in_pool(rows, todo, out, rules, keep_records, workers, bar):
         for future in as_completed(futures):
             chunk = futures[future]
             try:
-                for i, done in zip(chunk, future.result(), strict=True):
-                    out[i] = done
+                _put(out, chunk, future.result(), rules, rows)
             except BrokenProcessPool:
                 lost.extend(chunk)
                 continue
             except Exception as exc:  # e.g. a result that cannot be sent back
-                for i in chunk:
-                    out[i] = (_internal_error(rows[i], rules, f"{type(exc).__name__}: {exc}"), None)
+                _put(out, chunk, exc, rules, rows)
             bar.update(len(chunk))
-    # a worker died: every row it had not finished is tried again, alone, so
-    # only the row that kills a worker is lost
-    for i in sorted(lost):
-        try:
-            with _pool(1) as pool:
-                out[i] = pool.submit(reduce_guarded, rows[i], rules, keep_records).result()
-        except BrokenProcessPool:
-            out[i] = (_internal_error(rows[i], rules, "the worker process stopped while reducing "
-                                      "this row (out of memory, or killed)"), None)
-        except Exception as exc:
-            out[i] = (_internal_error(rows[i], rules, f"{type(exc).__name__}: {exc}"), None)
-        bar.update(1)
+    return lost
+
+
+def _put(out, chunk, done, rules, rows):
+    """A task's results into their rows (or, for an exception, its message as their error)."""
+    if isinstance(done, BaseException):
+        for i in chunk:
+            out[i] = (_internal_error(rows[i], rules, f"{type(done).__name__}: {done}"), None)
+        return
+    for i, one in zip(chunk, done, strict=True):
+        out[i] = one
+
+
+# -- forked workers ------------------------------------------------------------------
+#
+# Where the machine can fork, the workers are forked children that inherit the
+# rows (nothing is sent to them but task numbers) and take tasks from one pipe
+# until it is empty and closed: a worker starts its next task the moment it has
+# sent the last one back, and this process only writes task numbers and reads
+# results.  When one dies, the rows with no result are known (its task in hand,
+# and any task no worker took).  This is leaner than the executor
+# (no thread, no per-task message to the worker, no multiprocessing import),
+# which is what decides the speed-up on two cores.
+
+_TASK = 4  # bytes of a task number; writes of whole numbers up to PIPE_BUF are atomic
+_HEADER = 9  # kind (1 byte: R results, E error) + task (4) + length of what follows (4)
+
+
+def _forked(rows, chunks, out, rules, keep_records, workers, bar):
+    """The tasks in forked workers; returns the rows of tasks lost with a worker."""
+    import pickle
+    import selectors
+
+    for stream in (sys.stdout, sys.stderr):  # a child must not inherit unwritten output
+        stream.flush()
+    task_r, task_w = os.pipe()
+    os.set_blocking(task_w, False)
+    pending = b"".join(k.to_bytes(_TASK, "little") for k in range(len(chunks)))
+    children = {}  # result pipe -> (pid, bytes received and not yet read as messages)
+    finished = False
+    try:
+        for _ in range(min(workers, len(chunks))):
+            res_r, res_w = os.pipe()
+            pid = os.fork()
+            if pid == 0:  # the worker
+                os.close(res_r)
+                os.close(task_w)
+                for fd in children:
+                    os.close(fd)
+                _worker(task_r, res_w, rows, chunks, rules, keep_records)  # never returns
+            os.close(res_w)
+            children[res_r] = (pid, bytearray())
+        os.close(task_r)
+        task_r = None
+        with selectors.DefaultSelector() as sel:
+            for fd in children:
+                sel.register(fd, selectors.EVENT_READ)
+            sel.register(task_w, selectors.EVENT_WRITE)
+            open_children = len(children)
+            while open_children:
+                for key, _ in sel.select():
+                    fd = key.fd
+                    if fd == task_w:
+                        try:
+                            sent = os.write(task_w, pending[:4096])
+                        except BlockingIOError:
+                            continue
+                        pending = pending[sent:]
+                        if not pending:
+                            sel.unregister(task_w)
+                            os.close(task_w)
+                            task_w = None
+                        continue
+                    received = children[fd][1]
+                    data = os.read(fd, 1 << 20)
+                    if not data:  # the worker ended (normally, or died)
+                        sel.unregister(fd)
+                        open_children -= 1
+                        continue
+                    received += data
+                    for kind, k, payload in _messages(received):
+                        done = pickle.loads(payload) if kind == b"R" else RuntimeError(
+                            payload.decode("utf-8", "replace"))
+                        _put(out, chunks[k], done, rules, rows)
+                        bar.update(len(chunks[k]))
+        finished = True
+    finally:
+        if task_w is not None:
+            os.close(task_w)
+        if task_r is not None:
+            os.close(task_r)
+        for fd, (pid, _) in children.items():
+            os.close(fd)
+            if not finished:  # interrupted: stop the workers
+                try:
+                    os.kill(pid, signal.SIGTERM)
+                except ProcessLookupError:
+                    pass
+            os.waitpid(pid, 0)
+    return [i for chunk in chunks for i in chunk if out[i] is None]
+
+
+def _messages(buffer):
+    """Complete messages at the start of buffer (which loses them): (kind, task, payload)."""
+    while len(buffer) >= _HEADER:
+        size = int.from_bytes(buffer[5:9], "little")
+        if len(buffer) < _HEADER + size:
+            return
+        kind, k = bytes(buffer[:1]), int.from_bytes(buffer[1:5], "little")
+        payload = bytes(buffer[_HEADER:_HEADER + size])
+        del buffer[:_HEADER + size]
+        yield kind, k, payload
+
+
+def _worker(task_r, res_w, rows, chunks, rules, keep_records):
+    """A forked worker's life: tasks from task_r until it is closed, results to res_w."""
+    import pickle
+
+    code = 0
+    try:
+        while True:
+            got = os.read(task_r, _TASK)
+            if not got:
+                break
+            k = int.from_bytes(got, "little")
+            try:
+                payload = pickle.dumps(_reduce_chunk([rows[i] for i in chunks[k]], rules,
+                                                     keep_records), protocol=pickle.HIGHEST_PROTOCOL)
+                kind = b"R"
+            except Exception as exc:  # e.g. a result that cannot be pickled
+                payload, kind = f"{type(exc).__name__}: {exc}".encode(), b"E"
+            _send(res_w, kind, k, payload)
+    except BaseException:  # interrupted, or the pipe to the parent is gone
+        code = 1
+    finally:
+        os._exit(code)  # no clean-up of the parent's objects, no flushing of its buffers
+
+
+def _send(fd, kind, k, payload):
+    view = memoryview(kind + k.to_bytes(4, "little") + len(payload).to_bytes(4, "little") + payload)
+    while view:
+        view = view[os.write(fd, view):]
 
 
 class _Progress:

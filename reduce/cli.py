@@ -10,7 +10,6 @@ import argparse
 import json
 import sys
 
-from reduce._version import PROGRAM_VERSION
 from reduce.errors import CracktipError
 
 EXIT_OK, EXIT_BAD_INPUT = 0, 2
@@ -94,36 +93,54 @@ def add_rules_option(parser) -> None:
 
 
 #: each command lives in its own module and registers itself with one function;
-#: the modules are imported only when the parser is built, the heavy libraries
-#: only when a command runs.
+#: only the module of the command asked for is imported (all of them for help
+#: or an unknown command), the heavy libraries only when a command runs.
 COMMANDS = [
-    ("reduce.cli", "add_reduce_command"),
-    ("reduce.certify", "add_certify_command"),
-    ("reduce.certify", "add_verify_command"),
-    ("reduce.certify", "add_plot_command"),
-    ("reduce.qa", "add_accept_command"),
-    ("reduce.qa", "add_approve_command"),
-    ("reduce.qa", "add_history_command"),
-    ("reduce.qa", "add_trend_command"),
+    ("reduce", "reduce.cli", "add_reduce_command"),
+    ("certify", "reduce.certify", "add_certify_command"),
+    ("verify", "reduce.certify", "add_verify_command"),
+    ("plot", "reduce.certify", "add_plot_command"),
+    ("accept", "reduce.qa", "add_accept_command"),
+    ("approve", "reduce.qa", "add_approve_command"),
+    ("history", "reduce.qa", "add_history_command"),
+    ("trend", "reduce.qa", "add_trend_command"),
 ]
 
 
-def build_parser() -> argparse.ArgumentParser:
+class _ShowVersion(argparse.Action):
+    """``--version``: the version with its source digest, worked out only when asked for."""
+
+    def __init__(self, option_strings, dest, **kwargs):
+        super().__init__(option_strings, dest, nargs=0, default=argparse.SUPPRESS,
+                         help="show the program's version and exit")
+
+    def __call__(self, parser, namespace, values, option_string=None):
+        from reduce._version import PROGRAM_VERSION
+
+        print(f"cracktip {PROGRAM_VERSION}")
+        parser.exit()
+
+
+def build_parser(argv=None) -> argparse.ArgumentParser:
+    """The command-line parser; given the arguments, only the command they name."""
     import importlib
 
     p = argparse.ArgumentParser(
         prog="cracktip",
         description="Reduce fracture-toughness test records (ASTM E399 / ISO 12737) to K_Q, "
                     "validity and K_Ic, and issue certificates.")
-    p.add_argument("--version", action="version", version=f"cracktip {PROGRAM_VERSION}")
+    p.add_argument("--version", action=_ShowVersion)
     sub = p.add_subparsers(dest="command", required=True)
-    for module, func in COMMANDS:
+    first = next((a for a in (argv or []) if not a.startswith("-")), None)
+    wanted = [c for c in COMMANDS if c[0] == first] or COMMANDS
+    for _, module, func in wanted:
         getattr(importlib.import_module(module), func)(sub)
     return p
 
 
 def main(argv=None) -> int:
-    args = build_parser().parse_args(argv)
+    argv = sys.argv[1:] if argv is None else list(argv)
+    args = build_parser(argv).parse_args(argv)
     try:
         return args.func(args)
     except CracktipError as exc:
@@ -139,5 +156,18 @@ def main(argv=None) -> int:
         return EXIT_BAD_INPUT
 
 
+def console() -> None:
+    """The ``cracktip`` command (the console entry point): :func:`main`, then exit with its status."""
+    import gc
+
+    # The modules imported by now live as long as the process: the collector
+    # need not look at them again during the run, nor (in forked workers) touch
+    # their memory; and at the end it is spared a last pass over every object.
+    gc.freeze()
+    status = main()
+    gc.freeze()
+    sys.exit(status)
+
+
 if __name__ == "__main__":
-    sys.exit(main())
+    console()

@@ -57,6 +57,21 @@ slopes of the six windows are ranked from plain sums and the window kept is
 fitted again with centred sums, which give the numbers reported.  The
 result is the one the whole smoothed record gives, up to rounding.
 
+On a record of 16 blocks of 1,024 samples or more, the largest and smallest
+load and displacement of each block (:class:`BlockExtremes`) let the
+searches skip the blocks that cannot hold what they look for (the first
+sample at a load, the samples below a band, the samples at the maximum),
+and let the secant search skip blocks lying so far above the secant that
+no smoothed value there can fall below it; these give exactly what the
+sample-by-sample searches give.  Where a faster way of computing a number
+could differ from the plain one in rounding only, it is used only when the
+decision that hangs on it is certain from a bound on that rounding (the
+ranking of the windows, :func:`_steepest_window`; the curvature t against
+3, :func:`_curvature_t_orthogonal`); otherwise the plain computation is
+made.  The fit of the band is the plain one; only the rate of loading
+(:func:`loading_rate`) and, in :mod:`reduce.elastic_plastic`, the work
+under a long record are summed in another order, a few ε apart.
+
 Records that must not give a P_Q as they are
 --------------------------------------------
 - **Saturated load channel** (:func:`flat_top`): at least ten consecutive
@@ -104,6 +119,15 @@ _NARROW_WIDTHS, _CURVATURE_T, _CURVATURE_SAMPLES = (0.25, 0.20, 0.15, 0.10), 3.0
 _REFIT_BELOW, _REFIT_ROUNDS, _REFIT_SETTLED = 0.85, 3, 0.001
 #: samples per block where a long record is scanned block by block
 _BLOCK = 1 << 16
+#: samples per block of the block extremes (BlockExtremes); records shorter
+#: than _BLOCKED_FROM samples are searched sample by sample
+_CHUNK = 1024
+_BLOCKED_FROM = 16 * _CHUNK
+#: samples per piece where a long pass is made piece by piece: temporaries of
+#: this size stay in the cache and reuse their memory (a first touch of new
+#: memory costs more than the arithmetic)
+_PIECE = 8192
+_EPS = float(np.finfo(float).eps)
 #: a flat top: this many consecutive samples equal to the maximum, to this
 #: fraction of it (module notes; common practice, no source)
 _FLAT_MIN_SAMPLES = 10
@@ -146,6 +170,14 @@ def _centred_means(x, h, a, b):
     c = np.empty(hi - lo + 1)
     c[0] = 0.0
     np.cumsum(x[lo:hi], out=c[1:])
+    return _means_from_sums(c, lo, h, n, a, b)
+
+
+def _means_from_sums(c, lo, h, n, a, b):
+    """The means of _centred_means for i in [a, b) from its running sums c[k] = Σ x[lo:lo + k].
+
+    Only c up to index min(b + h, n) - lo is read.
+    """
     out = np.empty(b - a)
     i0, i1 = max(a, h), min(b, n - h)  # whole windows: i - h >= 0 and i + h < n
     if i1 > i0:
@@ -233,16 +265,269 @@ class Envelope:
     note: str
 
 
-def _checked(load, disp):
+def _extremes_of_blocks(x):
+    """Largest and smallest value of each block of _CHUNK samples (the last may be shorter)."""
+    n = x.size
+    m = n // _CHUNK * _CHUNK
+    nb = -(-n // _CHUNK)
+    hi, lo = np.empty(nb), np.empty(nb)
+    blocks = x[:m].reshape(-1, _CHUNK)
+    np.max(blocks, axis=1, out=hi[:m // _CHUNK])
+    np.min(blocks, axis=1, out=lo[:m // _CHUNK])
+    if m < n:
+        hi[-1], lo[-1] = x[m:].max(), x[m:].min()
+    return hi, lo
+
+
+class BlockExtremes:
+    """The largest and smallest load (and displacement) of each block of 1,024 samples.
+
+    The searches of the construction (the first sample at or above a load,
+    the largest load of a range, the samples below a load) look at the
+    blocks first and read sample by sample only the blocks that can hold
+    the answer.  Only comparisons are involved, so every answer is the one
+    the plain search over all samples gives.  Records shorter than 16
+    blocks, and loads holding NaN or inf, are searched plainly
+    (``blocked`` is False).  The displacement's extremes, the block sums
+    and the work arrays are made when first needed and kept: one object
+    serves all the searches on one record.
+
+    Parameters
+    ----------
+    load : ndarray
+        Load, kN, 1-D.
+    disp : ndarray, optional
+        Displacement, mm, same length (needed by the methods that use it).
+    """
+
+    def __init__(self, load, disp=None):
+        self.load, self.disp, self.n = load, disp, load.size
+        self.blocked = self.n >= _BLOCKED_FROM
+        if self.blocked:
+            self.load_max, self.load_min = _extremes_of_blocks(load)
+            # NaN or inf: compare sample by sample, as the plain searches do
+            self.blocked = bool(np.isfinite(self.load_max).all() and np.isfinite(self.load_min).all())
+        self._disp = None
+        self._flat = None
+        self._work = None
+        self._sums = None
+        self._magnitudes = None
+        self._secant = None
+        self._running_max = None
+        self._running_block_max = None
+
+    def work_arrays(self, size):
+        """Two float arrays of at least ``size`` samples for temporaries, kept for reuse.
+
+        Their contents are overwritten by each user; reusing them spares the
+        memory pages of a new array for each temporary of a long record.
+        """
+        if self._work is None or self._work[0].size < size:
+            size = min(max(size, size + size // 4), max(size, self.n))  # room for a wider band later
+            self._work = (np.empty(size), np.empty(size))
+        return self._work
+
+    def run_at_maximum(self):
+        """((first, one-past-last index) of the longest run at the maximum or None, P_max).
+
+        The run of :func:`flat_top`: at least ten consecutive samples at the
+        maximum, to 1e-9 of it (kept).
+        """
+        if self._flat is None:
+            P_max = self.max()
+            at_top = self.indices_at_least(P_max - _FLAT_REL * abs(P_max))
+            run = None
+            if at_top.size >= _FLAT_MIN_SAMPLES:
+                breaks = np.flatnonzero(np.diff(at_top) != 1)
+                starts = np.concatenate(([0], breaks + 1))
+                ends = np.concatenate((breaks + 1, [at_top.size]))
+                k = int(np.argmax(ends - starts))
+                if ends[k] - starts[k] >= _FLAT_MIN_SAMPLES:
+                    run = int(at_top[starts[k]]), int(at_top[ends[k] - 1]) + 1
+            self._flat = (run, P_max)
+        return self._flat
+
+    def running_max(self):
+        """The running maximum of the load (kept; for short records)."""
+        if self._running_max is None:
+            self._running_max = np.maximum.accumulate(self.load)
+        return self._running_max
+
+    def running_block_max(self):
+        """The running maximum of the block maxima (kept)."""
+        if self._running_block_max is None:
+            self._running_block_max = np.maximum.accumulate(self.load_max)
+        return self._running_block_max
+
+    def disp_extremes(self):
+        """(largest, smallest) displacement of each block."""
+        if self._disp is None:
+            self._disp = _extremes_of_blocks(self.disp)
+        return self._disp
+
+    def _span(self, a, b):
+        return a // _CHUNK, (b - 1) // _CHUNK + 1  # the blocks [c0, c1) that touch [a, b)
+
+    def max(self, a=0, b=None) -> float:
+        """Largest load of samples [a, b) (b > a)."""
+        x, b = self.load, self.n if b is None else b
+        if not self.blocked or b - a < 4 * _CHUNK:
+            return float(x[a:b].max())
+        c0, c1 = -(-a // _CHUNK), b // _CHUNK  # the blocks inside [a, b)
+        parts = [self.load_max[c0:c1].max()]
+        if a < c0 * _CHUNK:
+            parts.append(x[a:c0 * _CHUNK].max())
+        if c1 * _CHUNK < b:
+            parts.append(x[c1 * _CHUNK:b].max())
+        return float(np.max(parts))
+
+    def argmax(self, a=0, b=None) -> int:
+        """First index of the largest load of samples [a, b), as ``a + np.argmax(load[a:b])``."""
+        b = self.n if b is None else b
+        if not self.blocked or b - a < 4 * _CHUNK:
+            return a + int(np.argmax(self.load[a:b]))
+        return self.first_at_least(self.max(a, b), a, b)
+
+    def first_at_least(self, level, a=0, b=None) -> int:
+        """First index i in [a, b) with load[i] >= level, else b."""
+        x, b = self.load, self.n if b is None else b
+        if a >= b:
+            return b
+        if not self.blocked or b - a < 4 * _CHUNK:
+            hit = x[a:b] >= level
+            return a + int(np.argmax(hit)) if hit.any() else b
+        c0, c1 = self._span(a, b)
+        for c in (c0 + np.flatnonzero(self.load_max[c0:c1] >= level)).tolist():
+            s, e = max(c * _CHUNK, a), min((c + 1) * _CHUNK, b)
+            hit = x[s:e] >= level
+            if hit.any():  # a block wholly inside [a, b) always has one
+                return s + int(np.argmax(hit))
+        return b
+
+    def last_at_least(self, level, a=0, b=None) -> int:
+        """Last index i in [a, b) with load[i] >= level, else a - 1."""
+        x, b = self.load, self.n if b is None else b
+        if a >= b:
+            return a - 1
+        if not self.blocked or b - a < 4 * _CHUNK:
+            hit = np.flatnonzero(x[a:b] >= level)
+            return a + int(hit[-1]) if hit.size else a - 1
+        c0, c1 = self._span(a, b)
+        for c in (c0 + np.flatnonzero(self.load_max[c0:c1] >= level))[::-1].tolist():
+            s, e = max(c * _CHUNK, a), min((c + 1) * _CHUNK, b)
+            hit = np.flatnonzero(x[s:e] >= level)
+            if hit.size:
+                return s + int(hit[-1])
+        return a - 1
+
+    def _indices(self, a, b, level, below):
+        x = self.load
+
+        def plain(s, e):
+            return s + np.flatnonzero(x[s:e] < level if below else x[s:e] >= level)
+
+        if not self.blocked or b - a < 4 * _CHUNK:
+            return plain(a, b)
+        c0, c1 = self._span(a, b)
+        cand = c0 + np.flatnonzero(self.load_min[c0:c1] < level if below else self.load_max[c0:c1] >= level)
+        if cand.size > max(8, (c1 - c0) // 4):
+            return plain(a, b)
+        parts = [plain(max(c * _CHUNK, a), min((c + 1) * _CHUNK, b)) for c in cand.tolist()]
+        return np.concatenate(parts) if parts else np.flatnonzero(x[:0])
+
+    def indices_below(self, level, a=0, b=None) -> np.ndarray:
+        """``a + np.flatnonzero(load[a:b] < level)``."""
+        return self._indices(a, self.n if b is None else b, level, True)
+
+    def indices_at_least(self, level, a=0, b=None) -> np.ndarray:
+        """``a + np.flatnonzero(load[a:b] >= level)``."""
+        return self._indices(a, self.n if b is None else b, level, False)
+
+    def window_sums(self, a, b):
+        """Σv, ΣP, Σv², ΣvP over samples [a, b), from sums of whole blocks.
+
+        The same sums as over the samples, in another order: they differ in
+        rounding only (see :func:`_steepest_window`).
+        """
+        load, disp = self.load, self.disp
+        c0, c1 = -(-a // _CHUNK), b // _CHUNK  # the blocks inside [a, b)
+        if c1 - c0 < 2:
+            return tuple(_sums(disp[a:b], load[a:b]).tolist())
+        self._block_sums(c1)
+        total = self._sums[:, c0:c1].sum(axis=1)
+        for s, e in ((a, c0 * _CHUNK), (c1 * _CHUNK, b)):
+            if e > s:
+                total = total + _sums(disp[s:e], load[s:e])
+        return tuple(total.tolist())
+
+    def _block_sums(self, c1):
+        """Make the sums of the blocks [0, c1) (rows Σv, ΣP, Σv², ΣvP; they are kept)."""
+        have = 0 if self._sums is None else self._sums.shape[1]
+        if c1 <= have:
+            return
+        c1 = min(max(c1, 2 * have), self.n // _CHUNK)  # grow by doubling, whole blocks only
+        V = self.disp[have * _CHUNK:c1 * _CHUNK].reshape(-1, _CHUNK)
+        P = self.load[have * _CHUNK:c1 * _CHUNK].reshape(-1, _CHUNK)
+        new = np.stack([V.sum(axis=1), P.sum(axis=1), np.einsum("ij,ij->i", V, V),
+                        np.einsum("ij,ij->i", V, P)])
+        self._sums = new if self._sums is None else np.concatenate([self._sums, new], axis=1)
+
+    def magnitudes(self, a, b):
+        """(largest |v|, largest |P|) of the blocks that touch [a, b)."""
+        if self._magnitudes is None:
+            vmax, vmin = self.disp_extremes()
+            self._magnitudes = (np.maximum(np.abs(vmax), np.abs(vmin)),
+                                np.maximum(np.abs(self.load_max), np.abs(self.load_min)))
+        c0, c1 = self._span(a, b)
+        return float(self._magnitudes[0][c0:c1].max()), float(self._magnitudes[1][c0:c1].max())
+
+    def above_secant(self, lo, hi, ks, v0) -> bool:
+        """Is every smoothed value :func:`_first_crossing` computes from samples [lo, hi) positive?
+
+        From the block extremes: the least of P - ks (v - v0) over the blocks,
+        less the rounding of the samples' values, must exceed what the
+        running sum over [lo, hi) can lose to rounding, (hi - lo)² ε times
+        the largest value (positive terms summed in order).  ``False`` means
+        the samples must be looked at, not that the record crosses.
+        """
+        if not self.blocked or not ks > 0.0 or self.disp is None:
+            return False
+        if self._secant is None or self._secant[0] != (ks, v0):
+            vmax, vmin = self.disp_extremes()
+            up, down = vmax - v0, vmin - v0
+            with np.errstate(all="ignore"):  # the blocks' least and largest P - ks (v - v0), their size
+                self._secant = ((ks, v0), self.load_min - ks * up, self.load_max - ks * down,
+                                np.maximum(np.abs(self.load_max), np.abs(self.load_min))
+                                + ks * np.maximum(np.abs(up), np.abs(down)))
+        _, lows, highs, sizes = self._secant
+        c0, c1 = self._span(lo, hi)
+        low, high, size = float(lows[c0:c1].min()), float(highs[c0:c1].max()), float(sizes[c0:c1].max())
+        margin = 8.0 * _EPS * size
+        k = float(hi - lo)
+        return low - margin > 4.0 * k * k * _EPS * (high + margin)
+
+
+def _checked(load, disp, extremes=None):
+    """The arrays as float, refused when not 1-D of one length or holding NaN or inf.
+
+    With ``extremes`` (:class:`BlockExtremes` of the same arrays) the block
+    extremes tell whether a value is not finite (NaN and inf reach the
+    largest or the smallest value of their block), instead of a sum.
+    """
     load = np.asarray(load, dtype=float)
     disp = np.asarray(disp, dtype=float)
     if load.ndim != 1 or load.shape != disp.shape:
         raise ReductionError("load and displacement must be 1-D arrays of the same length, "
                              f"got shapes {load.shape} and {disp.shape}")
+    blocked = extremes is not None and extremes.blocked
     for name, x in (("load", load), ("displacement", disp)):
-        with np.errstate(all="ignore"):
-            total = float(np.sum(x))
-        if not math.isfinite(total):  # NaN or inf somewhere, or only a huge sum
+        if blocked:
+            hi, lo = (extremes.load_max, extremes.load_min) if name == "load" else extremes.disp_extremes()
+            finite = bool(np.isfinite(hi).all() and np.isfinite(lo).all())
+        else:
+            with np.errstate(all="ignore"):
+                finite = math.isfinite(float(np.sum(x)))  # False: NaN or inf somewhere, or a huge sum
+        if not finite:
             bad = int(np.count_nonzero(~np.isfinite(x)))
             if bad:
                 raise ReductionError(
@@ -261,19 +546,24 @@ def _dot(x, y) -> float:
     return float(np.einsum("i,i->", x, y))
 
 
-def _fit_line(v, P):
+def _fit_line(v, P, work=None):
+    """(k, c, r², residual sd) of P = k v + c, or None.
+
+    ``work``: two arrays of at least v.size samples (they may be v and P
+    themselves) that take the deviations and residuals instead of new arrays.
+    """
     n = v.size
     vm, Pm = float(v.mean()), float(P.mean())
-    dv = v - vm
+    dv = np.subtract(v, vm, out=None if work is None else work[0][:n])
     sxx = _dot(dv, dv)
     if not sxx > n * (_CONSTANT_REL * vm) ** 2:  # v constant but for rounding
         return None
-    dP = P - Pm
+    dP = np.subtract(P, Pm, out=None if work is None else work[1][:n])
     k = _dot(dv, dP) / sxx
     c = Pm - k * vm
-    resid = dP - k * dv
-    ss_res = _dot(resid, resid)
     ss_tot = _dot(dP, dP)
+    resid = np.subtract(dP, np.multiply(dv, k, out=dv), out=dv)  # dP - k dv, in dv's place
+    ss_res = _dot(resid, resid)
     r2 = 1.0 - ss_res / ss_tot if ss_tot > 0 else 0.0
     sd = (ss_res / max(n - 2, 1)) ** 0.5
     if not all(math.isfinite(x) for x in (k, c, r2, sd)):
@@ -281,24 +571,47 @@ def _fit_line(v, P):
     return k, c, r2, sd
 
 
-def _first_reaches(x, levels) -> list[int]:
-    """For each level (ascending), the first index i with x[i] >= level, else x.size.
+def _first_reaches(extremes, levels, start=0) -> list[int]:
+    """For each level (ascending), the first index i >= start with load[i] >= level, else n.
 
-    The same as searching the running maximum, without computing it: each
-    search goes on from where the one before stopped, in growing blocks.
+    ``start`` must be a sample before which the load stays below the first
+    level.  The first index at which the load reaches a level is the first
+    at which its running maximum does: a short record's running maximum is
+    searched (it is kept), or for a long record the running maximum of the
+    block maxima, and then the block found.
     """
-    n, pos, out = x.size, 0, []
-    for level in levels:
-        step = 4096
-        while pos < n:
-            e = min(pos + step, n)
-            hit = x[pos:e] >= level
-            if hit.any():
-                pos += int(np.argmax(hit))
-                break
-            pos, step = e, min(2 * step, _BLOCK)
-        out.append(pos)
+    load = extremes.load
+    if not extremes.blocked:
+        running = extremes.running_max()
+        if running.size and running[-1] == running[-1]:  # no NaN (it would stay to the end)
+            return np.searchsorted(running, levels, side="left").tolist()
+        pos, out = start, []
+        for level in levels:
+            pos = extremes.first_at_least(level, pos)
+            out.append(pos)
+        return out
+    blocks = np.searchsorted(extremes.running_block_max(), levels, side="left").tolist()
+    out = []
+    for c, level in zip(blocks, levels):
+        s = c * _CHUNK
+        out.append(extremes.n if c == extremes.load_max.size else s + int(np.argmax(load[s:s + _CHUNK] >= level)))
     return out
+
+
+def _without(x, i0, i1, out, into):
+    """x[i0:i1] without the samples ``out`` (sorted indices inside [i0, i1)), in ``into``.
+
+    Only the part up to the last sample left out goes through a mask; the
+    rest is copied as it is.  Returns the filled part of ``into``.
+    """
+    last = int(out[-1]) + 1
+    keep = np.ones(last - i0, dtype=bool)
+    keep[out - i0] = False
+    head = x[i0:last][keep]
+    res = into[:head.size + i1 - last]
+    res[:head.size] = head
+    res[head.size:] = x[last:i1]
+    return res
 
 
 def initial_slope(load: np.ndarray, disp: np.ndarray) -> LinearFit:
@@ -329,36 +642,43 @@ def initial_slope(load: np.ndarray, disp: np.ndarray) -> LinearFit:
     return _initial_slope(*_checked(load, disp))
 
 
-def _initial_slope(load, disp, P_ref=None):
-    P_max = float(load.max()) if load.size else 0.0
+def _initial_slope(load, disp, P_ref=None, extremes=None):
+    extremes = BlockExtremes(load, disp) if extremes is None else extremes
+    P_max = extremes.max() if load.size else 0.0
     if not P_max > 0.0:
         raise ReductionError("the record has no positive load")
     # the bands are fractions of P_ref: P_max, or P_Q for a record far beyond P_Q
     P_ref = P_max if P_ref is None else min(float(P_ref), P_max)
     # first index at which the load reaches each window's ends
     ends = sorted({lo for lo in _WINDOW_STARTS} | {lo + _WINDOW_WIDTH for lo in _WINDOW_STARTS})
-    reach = dict(zip(ends, _first_reaches(load, [e * P_ref for e in ends])))
+    reach = dict(zip(ends, _first_reaches(extremes, [e * P_ref for e in ends])))
     # rank the windows by slope from sums (cheap), then fit the steepest exactly
-    best = None
+    windows = []
     for lo in _WINDOW_STARTS:
         hi = lo + _WINDOW_WIDTH
         i0, i_hi = reach[lo], reach[hi]
         if i_hi - i0 < _MIN_FIT_POINTS:
             continue
         # samples of [i0, i_hi) below the band (scatter, dips) are left out
-        out = i0 + np.flatnonzero(load[i0:i_hi] < lo * P_ref)
-        k = _slope_from_sums(disp, load, i0, i_hi, out)
-        if k is not None and k > 0.0 and (best is None or k > best[0]):
-            best = (k, lo, hi, i0, i_hi, out)
+        windows.append((lo, hi, i0, i_hi, extremes.indices_below(lo * P_ref, i0, i_hi)))
+    best = _steepest_window(extremes, windows) if extremes.blocked else _UNSURE
+    if best is _UNSURE:
+        best = None
+        for lo, hi, i0, i_hi, out in windows:
+            k = _slope_from_sums(disp, load, i0, i_hi, out)
+            if k is not None and k > 0.0 and (best is None or k > best[0]):
+                best = (k, lo, hi, i0, i_hi, out)
     if best is not None:
         _, lo, hi, i0, i_hi, out = best
-        lo, hi, i0, i_hi, out = _narrowed_band(load, disp, P_ref, reach, lo, hi, i0, i_hi, out)
+        # the band's samples without those below it, in order (a copy only when some are left out)
+        work = extremes.work_arrays(i_hi - i0)
         if out.size:
-            keep = np.ones(i_hi - i0, dtype=bool)
-            keep[out - i0] = False
-            fitted = _fit_line(disp[i0:i_hi][keep], load[i0:i_hi][keep])
+            v, P = _without(disp, i0, i_hi, out, work[0]), _without(load, i0, i_hi, out, work[1])
         else:
-            fitted = _fit_line(disp[i0:i_hi], load[i0:i_hi])
+            v, P = disp[i0:i_hi], load[i0:i_hi]
+        lo, hi, i_hi, out = _narrowed_band(extremes, P_ref, lo, hi, i0, i_hi, out, v, P)
+        m = i_hi - i0 - out.size  # a narrower band keeps the first m of them
+        fitted = _fit_line(v[:m], P[:m], work)  # the deviations overwrite the copies, if any
         if fitted is not None and fitted[0] > 0.0:
             k, c, r2, sd = fitted
             band = (lo * P_ref / P_max, hi * P_ref / P_max)
@@ -373,7 +693,11 @@ def _curvature_t(v, P):
     if v.size < _MIN_FIT_POINTS + 2:
         return 0.0
     x = (P - P.mean()) / (np.ptp(P) or 1.0)
-    A = np.column_stack([np.ones_like(x), x, x * x - np.mean(x * x)])
+    q = x * x - np.mean(x * x)
+    t = _curvature_t_orthogonal(v, x, q)
+    if t is not None:
+        return t
+    A = np.column_stack([np.ones_like(x), x, q])
     coef, *_ = np.linalg.lstsq(A, v, rcond=None)
     r = v - A @ coef
     s2 = float(r @ r) / (v.size - 3)
@@ -384,24 +708,129 @@ def _curvature_t(v, P):
     return float(coef[2] / var**0.5) if var > 0 else 0.0
 
 
-def _narrowed_band(load, disp, P_ref, reach, lo, hi, i0, i_hi, out):
-    """Narrow the chosen band from the top while its curvature stands out of the scatter."""
+def _curvature_t_orthogonal(v, x, q):
+    """The t statistic of _curvature_t from orthogonalised columns, or None when unsure.
+
+    The quadratic column is made orthogonal to 1 and x (Frisch–Waugh: its
+    coefficient and standard error are those of the full fit), so the fit
+    needs only dot products of single columns, no LAPACK call.  The value is
+    returned only when it lies farther from the decision threshold (3) than
+    the two ways of computing it can differ: n^1.5 ε ‖v‖/‖r‖ (1 + |t|), r the
+    residuals, with a factor 64 to spare (first-order rounding bound of dot
+    products, |error| <= n u Σ|x_i y_i|: Higham, Accuracy and Stability of
+    Numerical Algorithms, 2nd ed., chapter 3, from memory); and only when
+    the quadratic column is not nearly a combination of the other two.
+    """
+    n = v.size
+    # x and q are centred already (to rounding, which the bound below covers)
+    vc = v - v.mean()
+    sxx, sxq = _dot(x, x), _dot(x, q)
+    if not sxx > 0.0:
+        return None
+    qt = q - (sxq / sxx) * x  # the part of q orthogonal to 1 and x
+    sqq = _dot(qt, qt)
+    if not sqq > 1e-6 * (sqq + sxq * sxq / sxx):  # q nearly a combination of 1 and x
+        return None
+    c2 = _dot(qt, vc) / sqq
+    r = vc - (_dot(x, vc) / sxx) * x
+    r -= c2 * qt
+    ss = _dot(r, r)
+    if not ss > 0.0:
+        return None
+    t = c2 * math.sqrt(sqq) / math.sqrt(ss / (n - 3))
+    unsure = 64.0 * n**1.5 * _EPS * math.sqrt(_dot(v, v) / ss) * (1.0 + abs(t))
+    if not (math.isfinite(t) and abs(t - _CURVATURE_T) > unsure):
+        return None
+    return float(t)
+
+
+def _narrowed_band(extremes, P_ref, lo, hi, i0, i_hi, out, v, P):
+    """Narrow the chosen band from the top while its curvature stands out of the scatter.
+
+    v and P are the band's samples without ``out``, in order; a narrower
+    band's are the first of them.  Returns (lo, hi, i_hi, out).
+    """
     for width in _NARROW_WIDTHS:
-        keep = np.ones(i_hi - i0, dtype=bool)
-        keep[out - i0] = False
-        # the samples _curvature_t keeps of the band, taken without copying the band
-        kept = i0 + np.flatnonzero(keep)
-        kept = kept[::max(1, kept.size // _CURVATURE_SAMPLES)]
-        t = _curvature_t(disp[kept], load[kept])
+        # every s-th sample of the band, s = max(1, count // 20 000)
+        count = i_hi - i0 - out.size
+        step = max(1, count // _CURVATURE_SAMPLES)
+        t = _curvature_t(v[:count:step].copy(), P[:count:step].copy())
         # displacement growing faster than linear in load: the band reaches the curved part
         if t <= _CURVATURE_T:
             break
-        new_hi = _first_reaches(load, [(lo + width) * P_ref])[0]
+        # the band's lower end i0 is reached first: the search starts there
+        new_hi = _first_reaches(extremes, [(lo + width) * P_ref], start=i0)[0]
         if new_hi - i0 < 4 * _MIN_FIT_POINTS:
             break
         hi, i_hi = lo + width, new_hi
-        out = i0 + np.flatnonzero(load[i0:i_hi] < lo * P_ref)
-    return lo, hi, i0, i_hi, out
+        out = out[:np.searchsorted(out, i_hi)]  # the samples below the band, now up to i_hi
+    return lo, hi, i_hi, out
+
+
+def _sums(v, P):
+    """[Σv, ΣP, Σv², ΣvP] of two arrays."""
+    return np.array([v.sum(), P.sum(), _dot(v, v), _dot(v, P)])
+
+
+#: _steepest_window could not decide: the windows are ranked by _slope_from_sums
+_UNSURE = object()
+
+
+def _steepest_window(extremes, windows):
+    """The window _slope_from_sums ranks steepest, decided from block sums, or _UNSURE.
+
+    Each window's sums are taken from sums of whole blocks
+    (:meth:`BlockExtremes.window_sums`), which differ from the sums over its
+    samples by rounding only.  Any order of summing N terms errs by at most
+    (N - 1) u Σ|x|, u = ε/2, to first order (Higham, Accuracy and
+    Stability of Numerical Algorithms, 2nd ed., chapter 4, from memory; the
+    bound here takes 2 (2N + 64) ε, the samples left out counted too), so
+    both slopes lie within a bound e of each other; the answer is given
+    only when every decision (enough spread of v, k > 0, the steepest
+    window) holds for every slope within the bounds.  The bounds take Σ|x|
+    as N times the largest |x| of the blocks.
+    """
+    load, disp = extremes.load, extremes.disp
+    found = []
+    with np.errstate(all="ignore"):
+        for window in windows:
+            _lo, _hi, i0, i1, out = window
+            n = i1 - i0 - out.size
+            if n < _MIN_FIT_POINTS:
+                continue  # exactly what _slope_from_sums does
+            sv, sP, svv, svP = extremes.window_sums(i0, i1)
+            if out.size:
+                vo, Po = disp[out], load[out]
+                sv, sP, svv, svP = sv - vo.sum(), sP - Po.sum(), svv - _dot(vo, vo), svP - _dot(vo, Po)
+            M_v, M_P = extremes.magnitudes(i0, i1)
+            N = i1 - i0
+            g = 2.0 * (2 * N + 64) * _EPS  # N ε for the kept sums, outs taken off included
+            Av, AP, Avv, AvP = N * M_v, N * M_P, N * M_v * M_v, N * M_v * M_P
+            Ev, EP, Evv, EvP = g * Av, g * AP, g * Avv, g * AvP
+            sxx, sxy = float(svv - sv * sv / n), float(svP - sv * sP / n)
+            dxx = Evv + (2.0 * Av * Ev + Ev * Ev) / n + 4.0 * _EPS * (Avv + Av * Av / n)
+            dxy = EvP + (Av * EP + AP * Ev + Ev * EP) / n + 4.0 * _EPS * (AvP + Av * AP / n)
+            spread_hi = n * (_SUMS_CONSTANT_REL * (abs(sv) + 2.0 * Ev) / n) ** 2 * (1.0 + 1e-9)
+            spread_lo = n * (_SUMS_CONSTANT_REL * max(abs(sv) - 2.0 * Ev, 0.0) / n) ** 2 * (1.0 - 1e-9)
+            if not all(math.isfinite(x) for x in (sxx, sxy, dxx, dxy, spread_hi)):
+                return _UNSURE
+            if sxx + 2.0 * dxx <= spread_lo:
+                continue  # v constant but for the sums' rounding, in either order
+            if not (sxx - 2.0 * dxx > spread_hi and sxx > 4.0 * dxx and abs(sxy) > 4.0 * dxy):
+                return _UNSURE
+            k = sxy / sxx
+            e = 4.0 * abs(k) * (dxy / abs(sxy) + dxx / sxx) + 8.0 * _EPS * abs(k)
+            if k + e <= 0.0:
+                continue  # not rising, in either order
+            if not k - e > 0.0:
+                return _UNSURE
+            found.append((k, e, window))
+    if not found:
+        return None
+    k, e, window = max(found, key=lambda f: f[0])
+    if any(other is not window and not k - e > k2 + e2 for k2, e2, other in found):
+        return _UNSURE  # too close to call from the bounds
+    return (k, *window)
 
 
 def _slope_from_sums(v, P, i0, i1, out):
@@ -483,22 +912,19 @@ def flat_top(load: np.ndarray, fit: LinearFit) -> tuple[int, int] | None:
     (True, True)
     """
     load = np.asarray(load, dtype=float)
-    P_max = float(load.max())
-    at_top = np.flatnonzero(load >= P_max - _FLAT_REL * abs(P_max))
-    if at_top.size < _FLAT_MIN_SAMPLES:
-        return None
-    breaks = np.flatnonzero(np.diff(at_top) != 1)
-    starts = np.concatenate(([0], breaks + 1))
-    ends = np.concatenate((breaks + 1, [at_top.size]))
-    k = int(np.argmax(ends - starts))
-    if ends[k] - starts[k] < _FLAT_MIN_SAMPLES:
+    return _flat_top(load, fit, BlockExtremes(load))
+
+
+def _flat_top(load, fit, extremes):
+    run, P_max = extremes.run_at_maximum()
+    if run is None:
         return None
     i0, i1 = fit.index_range
     steps = np.abs(np.diff(load[i0:i1]))
     steps = steps[steps > _FLAT_REL * abs(P_max)]
     if steps.size == 0 or not fit.residual_sd_kN > float(steps.min()):
         return None  # no scatter above the resolution: a plateau cannot be told from a limit
-    return int(at_top[starts[k]]), int(at_top[ends[k] - 1]) + 1
+    return run
 
 
 def loading_envelope(load: np.ndarray, disp: np.ndarray) -> Envelope:
@@ -543,14 +969,18 @@ def loading_envelope(load: np.ndarray, disp: np.ndarray) -> Envelope:
     (101, (50, 89))
     """
     load, disp = _checked(load, disp)
+    return _envelope(load, disp, BlockExtremes(load, disp))
+
+
+def _envelope(load, disp, extremes):
     with np.errstate(all="ignore"):  # huge values overflow to inf, which compares as it should
-        return _envelope(load, disp)
+        return _envelope_of(load, disp, extremes)
 
 
-def _envelope(load, disp):
+def _envelope_of(load, disp, extremes):
     n = load.size
-    P_max = float(load.max()) if n else 0.0
-    if n < 3 or not P_max > 0.0 or not _load_falls(load, _CYCLE_DROP * P_max):
+    P_max = extremes.max() if n else 0.0
+    if n < 3 or not P_max > 0.0 or not _load_falls(load, _CYCLE_DROP * P_max, extremes):
         return Envelope(None, (), "")
     back = disp < np.maximum.accumulate(disp)
     edges = np.flatnonzero(np.diff(back.view(np.int8)))
@@ -581,25 +1011,29 @@ def _envelope(load, disp):
     return Envelope(np.flatnonzero(keep), tuple(found), note)
 
 
-def _load_falls(load, drop) -> bool:
+def _load_falls(load, drop, extremes) -> bool:
     """Could the load anywhere fall by more than ``drop`` below an earlier value?
 
     Block maxima and minima answer it for a long rising record in a few
     passes; a True only means the exact search is needed.
     """
     n = load.size
-    m = n // 1024 * 1024
-    if m < 4 * 1024:
+    m = n // _CHUNK * _CHUNK
+    if m < 4 * _CHUNK:
         return bool(np.any(np.maximum.accumulate(load) - load > drop))
-    blocks = load[:m].reshape(-1, 1024)
-    highest = np.maximum.accumulate(blocks.max(axis=1))
-    if np.any(highest - blocks.min(axis=1) > drop):
+    if extremes.blocked:
+        tops, bottoms = extremes.load_max[:m // _CHUNK], extremes.load_min[:m // _CHUNK]
+    else:
+        blocks = load[:m].reshape(-1, _CHUNK)
+        tops, bottoms = blocks.max(axis=1), blocks.min(axis=1)
+    highest = np.maximum.accumulate(tops)
+    if np.any(highest - bottoms > drop):
         return True
     tail = load[m:]
     return bool(tail.size and float(highest[-1]) - float(tail.min()) > drop)
 
 
-def _is_end_of_test(load, disp, j, P_cross, slope, w) -> bool:
+def _is_end_of_test(load, disp, j, P_cross, slope, w, extremes) -> bool:
     """Does the crossing at sample j lie on the end of the test, not on the loading?
 
     It does when the load never again reaches the crossing load (beyond the
@@ -610,8 +1044,8 @@ def _is_end_of_test(load, disp, j, P_cross, slope, w) -> bool:
     falling branch or at a pop-in, is a genuine P_5.
     """
     n, h = load.size, w // 2
-    later = load[min(j + h + 1, n - 1):]
-    if later.size and float(later.max()) >= P_cross:
+    first_later = min(j + h + 1, n - 1)
+    if first_later < n and extremes.max(first_later) >= P_cross:
         return False
     i0, i1 = max(j - h - 1, 0), min(j + h, n - 1)
     dP, dv = float(load[i1] - load[i0]), float(disp[i1] - disp[i0])
@@ -619,23 +1053,61 @@ def _is_end_of_test(load, disp, j, P_cross, slope, w) -> bool:
     return not advancing
 
 
-def _first_crossing(load, disp, ks, v0, start, w):
+def _first_crossing(load, disp, ks, v0, start, w, extremes):
     """First index j >= start where the smoothed record falls below the secant.
 
-    Scans block by block; returns None when the record never does.
+    Scans block by block; returns None when the record never does.  A block
+    whose samples lie so far above the secant that no smoothed value can be
+    below it (:meth:`BlockExtremes.above_secant`) is passed over.
     """
     n, h = load.size, w // 2
     a = start
     while a < n:
         b = min(a + _BLOCK, n)
         lo, hi = max(a - h, 0), min(b + h, n)
-        g_raw = load[lo:hi] - ks * (disp[lo:hi] - v0)
-        # windows reach at most h beyond the block: only the record's ends clip them
-        g = _centred_means(g_raw, h, a - lo, b - lo) if w > 1 else g_raw[a - lo:b - lo]
-        below = np.flatnonzero(g < 0.0)
-        if below.size:
-            return a + int(below[0])
+        if extremes.above_secant(lo, hi, ks, v0):
+            a = b
+            continue
+        if w > 1:
+            j = _first_below_in_block(load, disp, ks, v0, a, b, h)
+            if j is not None:
+                return j
+        else:
+            below = np.flatnonzero(load[a:b] - ks * (disp[a:b] - v0) < 0.0)
+            if below.size:
+                return a + int(below[0])
         a = b
+    return None
+
+
+def _first_below_in_block(load, disp, ks, v0, a, b, h):
+    """First j in [a, b) where the smoothed P - ks (v - v0) is negative, else None.
+
+    The values are those of _centred_means over the block's samples
+    [a - h, b + h) (windows reach at most h beyond the block: only the
+    record's ends clip them), found in steps of _PIECE samples: the running
+    sum is carried on from step to step (a cumulative sum adds in order, so
+    its values do not depend on where it stops), and the block is read only
+    as far as its first negative value.
+    """
+    n = load.size
+    lo, hi = max(a - h, 0), min(b + h, n)
+    m = hi - lo
+    c = np.empty(m + 1)
+    c[0] = 0.0
+    have, i = 0, a - lo
+    while i < b - lo:
+        e = min(i + _PIECE, b - lo)
+        need = min(e + h, m)
+        if need > have:
+            part = c[have:need + 1]  # part[0] = c[have], the sum so far
+            np.subtract(load[lo + have:lo + need], ks * (disp[lo + have:lo + need] - v0), out=part[1:])
+            np.cumsum(part, out=part)
+            have = need
+        below = np.flatnonzero(_means_from_sums(c, 0, h, m, i, e) < 0.0)
+        if below.size:
+            return lo + i + int(below[0])
+        i = e
     return None
 
 
@@ -645,17 +1117,17 @@ def _smoothed_at(x, h, i):
     return float(np.mean(x[L:R]))
 
 
-def _smoothed_max_exceeds(load, h, j, level) -> bool:
+def _smoothed_max_exceeds(load, h, j, level, extremes) -> bool:
     """Does the moving average of the load before sample j exceed ``level``?
 
     A mean never exceeds the largest sample in its window, so only the
     windows around raw samples above ``level`` are averaged.
     """
-    raw = load[:j]
-    if not float(raw.max()) > level:
+    if not extremes.max(0, j) > level:
         return False
-    above = np.flatnonzero(raw > level)
-    a, b = max(int(above[0]) - h, 0), min(int(above[-1]) + h + 1, j)
+    above = np.nextafter(level, np.inf)  # x > level is x >= the next float above level
+    first, last = extremes.first_at_least(above, 0, j), extremes.last_at_least(above, 0, j)
+    a, b = max(first - h, 0), min(last + h + 1, j)
     return bool(float(_centred_means(load, h, a, b).max()) > level)
 
 
@@ -693,13 +1165,17 @@ def secant_construction(load: np.ndarray, disp: np.ndarray, ratio: float = 0.95)
     load preceding P_5.
     """
     load, disp = _checked(load, disp)
-    out = _construction(load, disp, ratio, _initial_slope(load, disp))
+    return _secant(load, disp, ratio, BlockExtremes(load, disp))
+
+
+def _secant(load, disp, ratio, extremes):
+    out = _construction(load, disp, ratio, _initial_slope(load, disp, None, extremes), extremes)
     # a record loaded far beyond P_Q: the bands scaled by P_max reach into the
     # curved part, so fit again with bands scaled by P_Q until P_Q settles
     for _ in range(_REFIT_ROUNDS):
         if out.P_Q >= _REFIT_BELOW * out.P_max:
             break
-        again = _construction(load, disp, ratio, _initial_slope(load, disp, out.P_Q))
+        again = _construction(load, disp, ratio, _initial_slope(load, disp, out.P_Q, extremes), extremes)
         settled = abs(again.P_Q - out.P_Q) <= _REFIT_SETTLED * out.P_Q
         out = again
         if settled:
@@ -707,8 +1183,8 @@ def secant_construction(load: np.ndarray, disp: np.ndarray, ratio: float = 0.95)
     return out
 
 
-def _construction(load, disp, ratio, fit):
-    flat = flat_top(load, fit)
+def _construction(load, disp, ratio, fit, extremes):
+    flat = _flat_top(load, fit, extremes)
     if flat is not None:
         i0, i1 = flat
         raise ReductionError(
@@ -718,13 +1194,13 @@ def _construction(load, disp, ratio, fit):
             "are not known from this record")
     v0 = fit.origin_mm
     ks = ratio * fit.slope
-    i_max = int(np.argmax(load))
+    i_max = extremes.argmax()
     P_max, v_max = float(load[i_max]), float(disp[i_max] - v0)
     n = load.size
     w = smoothing_window(n)
     h = w // 2
 
-    j = _first_crossing(load, disp, ks, v0, fit.index_range[1], w)
+    j = _first_crossing(load, disp, ks, v0, fit.index_range[1], w, extremes)
     P_5 = v_5 = None
     note = ""
     if j is not None:
@@ -734,7 +1210,7 @@ def _construction(load, disp, ratio, fit):
         g0, g1 = Pa - ks * va, Pb - ks * vb
         t = min(max(g0 / (g0 - g1), 0.0), 1.0) if g0 != g1 else 0.0
         P_cross, v_cross = float(Pa + t * (Pb - Pa)), float(va + t * (vb - va))
-        if _is_end_of_test(load, disp, j, P_cross, fit.slope, w):
+        if _is_end_of_test(load, disp, j, P_cross, fit.slope, w, extremes):
             j = None
             note = "the record ends at fracture (or unloading) before it reaches the secant"
         else:
@@ -749,9 +1225,9 @@ def _construction(load, disp, ratio, fit):
     else:
         # the smoothed crossing at j reflects raw samples up to j + h: a sharp
         # pop-in peak may lie among them
-        i_before = int(np.argmax(load[:min(j + h + 1, n)]))
+        i_before = extremes.argmax(0, min(j + h + 1, n))
         P_before = float(load[i_before])
-        if _smoothed_max_exceeds(load, h, j, P_5 + tol):
+        if _smoothed_max_exceeds(load, h, j, P_5 + tol, extremes):
             is_overall_max = P_before >= P_max - tol
             curve = "III" if is_overall_max else "II"
             why = ("P_max precedes P_5" if is_overall_max
@@ -769,6 +1245,79 @@ def _construction(load, disp, ratio, fit):
     return out
 
 
+@dataclass(frozen=True)
+class Construction:
+    """The construction of a record made on its loading envelope.
+
+    Attributes
+    ----------
+    envelope : Envelope
+        The unloading-reloading cycles removed.
+    load, disp : numpy.ndarray
+        The envelope's samples, kN and mm (the record's own arrays when no
+        cycle was removed).
+    time : numpy.ndarray or None
+        The envelope's time stamps, s, when a time channel was given.
+    secant : SecantResult
+        The secant construction on them.
+    extremes : BlockExtremes
+        The block extremes of ``load`` and ``disp``, for later searches.
+    """
+
+    envelope: Envelope
+    load: np.ndarray
+    disp: np.ndarray
+    time: np.ndarray | None
+    secant: SecantResult
+    extremes: BlockExtremes
+
+
+def construction_on_envelope(load: np.ndarray, disp: np.ndarray, ratio: float = 0.95,
+                             time: np.ndarray | None = None) -> Construction:
+    """:func:`secant_construction` on :func:`loading_envelope` of the record.
+
+    The same results as the two functions called in turn; the record is
+    checked once and its block extremes serve both.
+
+    Parameters
+    ----------
+    load : ndarray
+        Load, kN, in sample order.
+    disp : ndarray
+        Displacement, mm, same length, any origin.
+    ratio : float
+        Slope of the secant relative to the initial slope.
+    time : array_like, optional
+        Time, s, same length; its samples on the envelope are returned.
+
+    Returns
+    -------
+    Construction
+
+    Raises
+    ------
+    ReductionError
+        As :func:`loading_envelope` and :func:`secant_construction`.
+
+    References
+    ----------
+    ASTM E399 clause 9.1.1 (the construction is made on the loading record).
+    """
+    load = np.asarray(load, dtype=float)
+    disp = np.asarray(disp, dtype=float)
+    if load.ndim != 1 or load.shape != disp.shape:
+        _checked(load, disp)  # raises, naming the shapes
+    extremes = BlockExtremes(load, disp)
+    load, disp = _checked(load, disp, extremes)
+    envelope = _envelope(load, disp, extremes)
+    if envelope.keep is not None:
+        # samples of a checked record: finite, no second check needed
+        load, disp = load[envelope.keep], disp[envelope.keep]
+        time = None if time is None else np.asarray(time, dtype=float)[envelope.keep]
+        extremes = BlockExtremes(load, disp)
+    return Construction(envelope, load, disp, time, _secant(load, disp, ratio, extremes), extremes)
+
+
 def loading_rate(load: np.ndarray, time: np.ndarray, fit: LinearFit) -> float | None:
     """Rate of loading dP/dt over the initial-slope window, kN/s.
 
@@ -781,10 +1330,41 @@ def loading_rate(load: np.ndarray, time: np.ndarray, fit: LinearFit) -> float | 
     i0, i1 = fit.index_range
     t = np.asarray(time[i0:i1], dtype=float)
     P = np.asarray(load[i0:i1], dtype=float)
-    ok = np.isfinite(t) & np.isfinite(P)
-    if not ok.all():  # copies only when some stamps are missing
-        t, P = t[ok], P[ok]
+    with np.errstate(all="ignore"):
+        sums = float(t.sum()), float(P.sum())
+    if not math.isfinite(sums[0] + sums[1]):  # NaN, inf or a huge sum
+        ok = np.isfinite(t) & np.isfinite(P)
+        if not ok.all():  # copies only when some stamps are missing
+            t, P = t[ok], P[ok]
+            sums = float(t.sum()), float(P.sum())
     if t.size < 2 or np.ptp(t) <= 0.0:
         return None
-    fitted = _fit_line(t, P)
-    return None if fitted is None else fitted[0]
+    k = _slope_by_pieces(t, P, sums[0] / t.size, sums[1] / t.size) if t.size > 4 * _PIECE else _UNSURE
+    if k is _UNSURE:
+        fitted = _fit_line(t, P)
+        k = None if fitted is None else fitted[0]
+    return k
+
+
+def _slope_by_pieces(v, P, vm, Pm):
+    """The slope k of :func:`_fit_line`, its centred sums taken piece by piece, or _UNSURE.
+
+    vm and Pm are the means.  Given only when the fit is clearly not
+    degenerate, r² is above 0.9 and no sum comes near overflow, so that
+    _fit_line would return a finite fit: its k differs from this one by
+    rounding only.
+    """
+    n = v.size
+    dv, dP = np.empty(_PIECE), np.empty(_PIECE)
+    sxx = sxy = syy = 0.0
+    for s in range(0, n, _PIECE):
+        e = min(s + _PIECE, n)
+        a, b = np.subtract(v[s:e], vm, out=dv[:e - s]), np.subtract(P[s:e], Pm, out=dP[:e - s])
+        sxx, sxy, syy = sxx + _dot(a, a), sxy + _dot(a, b), syy + _dot(b, b)
+    if not (sxx > 2.0 * n * (_CONSTANT_REL * vm) ** 2 and sxy * sxy > 0.9 * sxx * syy):
+        return _UNSURE  # nearly degenerate, or r² below 0.9: k not well defined
+    k = sxy / sxx
+    c = Pm - k * vm
+    if not (math.isfinite(k) and math.isfinite(c) and syy < 1e300 and k * k * sxx < 1e300):
+        return _UNSURE
+    return k

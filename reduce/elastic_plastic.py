@@ -79,7 +79,7 @@ from pathlib import Path
 import numpy as np
 
 import specimens
-from reduce.construction import moving_average, smoothing_window
+from reduce.construction import BlockExtremes, moving_average, smoothing_window
 from reduce.errors import ReductionError
 from reduce.models import Specimen
 from reduce.rules import Check
@@ -102,6 +102,9 @@ _MIN_FRACTION_OF_PMAX = 0.2
 # A fall after the maximum must also exceed this many standard errors of the smoothed
 # load (common practice, no source; the fraction of P_max is in limits.toml).
 _FALL_SIGMAS = 4.0
+# Samples per block of the work integral of a long record, and the least plastic
+# work, as a fraction of the total, for which it is used (rounding, not a limit)
+_WORK_BLOCK, _WORK_PLASTIC_MIN = 1 << 15, 1e-3
 
 ASSUMPTION_NOTE = ("the elastic-plastic factors and size limits are written from memory of ASTM E1820, "
                    "ASTM E1921, BS 7448-1 and ISO 12135; confirm them against the editions in force")
@@ -163,9 +166,24 @@ def _limits() -> dict:
         return tomllib.load(fh)["elastic_plastic"]
 
 
-def _instability_index(load: np.ndarray, v: np.ndarray, slope: float) -> int | None:
+class _Shifted:
+    """The origin-corrected displacement v = disp - v0, computed only where it is read.
+
+    ``v[i]`` and ``v[a:b]`` hold the values ``(disp - v0)[i]`` and
+    ``(disp - v0)[a:b]`` would (a slice is a new array), without the whole
+    shifted record being made.
+    """
+
+    def __init__(self, disp, v0):
+        self.disp, self.v0, self.size = disp, v0, disp.size
+
+    def __getitem__(self, i):
+        return self.disp[i] - self.v0
+
+
+def _instability_index(load, v, slope: float, extremes) -> int | None:
     n = load.size
-    i_max = int(np.argmax(load))
+    i_max = extremes.argmax()
     if n < 2:
         return None
     # the drop starts at or after P_max: only the samples from there are searched
@@ -226,9 +244,12 @@ def load_fall_after_maximum(load_kN, v_mm, noise_sd_kN: float = 0.0) -> float | 
     True
     """
     load = np.asarray(load_kN, dtype=float)
-    v = np.asarray(v_mm, dtype=float)
+    return _load_fall(load, np.asarray(v_mm, dtype=float), noise_sd_kN, BlockExtremes(load))
+
+
+def _load_fall(load, v, noise_sd_kN, extremes):
     w = smoothing_window(load.size)
-    start = _smoothed_max_start(load, w // 2)
+    start = _smoothed_max_start(load, w // 2, extremes)
     smooth = moving_average(load, w, start)  # samples start, start + 1, ...
     i = start + int(np.argmax(smooth))
     top = float(smooth[i - start])
@@ -242,7 +263,7 @@ def load_fall_after_maximum(load_kN, v_mm, noise_sd_kN: float = 0.0) -> float | 
     return (top - low) / top if top - low > need else None
 
 
-def _smoothed_max_start(load, h):
+def _smoothed_max_start(load, h, extremes):
     """A sample at or before the maximum of the load smoothed over 2h + 1 samples.
 
     A mean never exceeds the largest sample in its window: no window that
@@ -251,9 +272,10 @@ def _smoothed_max_start(load, h):
     """
     if h == 0 or load.size == 0:
         return 0
-    j = int(np.argmax(load))
+    j = extremes.argmax()
     level = float(np.mean(load[max(j - h, 0):j + h + 1]))
-    return max(int(np.argmax(load >= level)) - h, 0)
+    first = extremes.first_at_least(level)
+    return max((0 if first == load.size else first) - h, 0)  # as np.argmax(load >= level)
 
 
 def point_of_interest(load_kN, v_mm, slope: float, *, pop_in_index: int | None = None,
@@ -304,8 +326,12 @@ def point_of_interest(load_kN, v_mm, slope: float, *, pop_in_index: int | None =
     'end_of_record'
     """
     load = np.asarray(load_kN, dtype=float)
-    v = np.asarray(v_mm, dtype=float)
-    if load.size == 0 or not float(load.max()) > 0.0:
+    return _point_of_interest(load, np.asarray(v_mm, dtype=float), slope, pop_in_index, noise_sd_kN,
+                              BlockExtremes(load))
+
+
+def _point_of_interest(load, v, slope, pop_in_index, noise_sd_kN, extremes) -> PointOfInterest:
+    if load.size == 0 or not extremes.max() > 0.0:
         raise ElasticPlasticError("the record has no positive load")
     if not slope > 0.0:
         raise ElasticPlasticError(f"the initial slope must be positive, got {slope!r} kN/mm")
@@ -314,11 +340,11 @@ def point_of_interest(load_kN, v_mm, slope: float, *, pop_in_index: int | None =
             raise ElasticPlasticError(f"the pop-in sample {pop_in_index} is not one of the {load.size} samples")
         i = int(pop_in_index)
         return PointOfInterest(i, "pop_in", float(load[i]), float(v[i]))
-    i = _instability_index(load, v, slope)
+    i = _instability_index(load, v, slope, extremes)
     if i is not None:
         return PointOfInterest(i, "instability", float(load[i]), float(v[i]))
-    i = int(np.argmax(load))
-    fall = load_fall_after_maximum(load, v, noise_sd_kN)
+    i = extremes.argmax()
+    fall = _load_fall(load, v, noise_sd_kN, extremes)
     return PointOfInterest(i, "end_of_record" if fall is None else "P_max", float(load[i]), float(v[i]), fall)
 
 
@@ -351,14 +377,36 @@ def work_under_record(load_kN, v_mm, i_end: int, i_join: int = 0) -> float:
     >>> work_under_record([0, 10, 20], [0, 0.5, 1.0], 2)   # triangle ½·20·1
     10.0
     """
-    P = np.asarray(load_kN, dtype=float)
-    v = np.asarray(v_mm, dtype=float)
+    return _work(np.asarray(load_kN, dtype=float), np.asarray(v_mm, dtype=float), i_end, i_join)
+
+
+def _work(P, v, i_end, i_join):
+    """work_under_record of a load array and v, an array or a :class:`_Shifted`."""
     if not 0 <= i_join <= i_end < P.size:
         raise ElasticPlasticError(f"cannot integrate from sample {i_join} to {i_end} of {P.size}")
     seg_P, seg_v = P[i_join:i_end + 1], v[i_join:i_end + 1]
     # einsum, not @: the BLAS dot's threads wait on a busy core (reduce.construction._dot)
     trapezoids = 0.5 * float(np.einsum("i,i->", seg_P[1:] + seg_P[:-1], np.diff(seg_v)))
     return float(0.5 * P[i_join] * v[i_join] + trapezoids)
+
+
+def _work_by_blocks(P, v, i_end, i_join):
+    """:func:`_work` for a long record, block by block in the cache.
+
+    The trapezoids are summed as Σ P_i Δd_i + Σ P_(i+1) Δd_i with Δd the
+    steps of the measured displacement (the origin shift cancels in them):
+    the same sum in another order and rounding, a few ε of the work apart.
+    """
+    if not 0 <= i_join <= i_end < P.size:
+        raise ElasticPlasticError(f"cannot integrate from sample {i_join} to {i_end} of {P.size}")
+    d = v.disp
+    step = np.empty(min(_WORK_BLOCK, i_end - i_join))
+    total = 0.0
+    for s in range(i_join, i_end, _WORK_BLOCK):
+        e = min(s + _WORK_BLOCK, i_end)
+        dd = np.subtract(d[s + 1:e + 1], d[s:e], out=step[:e - s])
+        total += float(np.einsum("i,i->", P[s:e], dd)) + float(np.einsum("i,i->", P[s + 1:e + 1], dd))
+    return float(0.5 * P[i_join] * v[i_join] + 0.5 * total)
 
 
 def plastic_work(load_kN, v_mm, i_end: int, slope: float, i_join: int = 0) -> tuple[float, float]:
@@ -402,6 +450,25 @@ def plastic_work(load_kN, v_mm, i_end: int, slope: float, i_join: int = 0) -> tu
     A = work_under_record(load_kN, v_mm, i_end, i_join)
     P_n = float(np.asarray(load_kN, dtype=float)[i_end])
     return A, A - P_n**2 / (2.0 * slope)
+
+
+def _plastic_work(P, v, i_end, slope, i_join):
+    """plastic_work of a load array and v, an array or a :class:`_Shifted`.
+
+    A long segment is integrated by :func:`_work_by_blocks`; when the
+    plastic work comes out below 1e-3 of the total (a record nearly linear,
+    where the rounding of A would show in A_pl), A is integrated again as
+    :func:`work_under_record` does.
+    """
+    if not slope > 0.0:
+        raise ElasticPlasticError(f"the initial slope must be positive, got {slope!r} kN/mm")
+    elastic = float(P[i_end])**2 / (2.0 * slope)
+    if isinstance(v, _Shifted) and i_end - i_join > 2 * _WORK_BLOCK:
+        A = _work_by_blocks(P, v, i_end, i_join)
+        if abs(A - elastic) > _WORK_PLASTIC_MIN * abs(A):
+            return A, A - elastic
+    A = _work(P, v, i_end, i_join)
+    return A, A - elastic
 
 
 def elastic_J(K: float, E_MPa: float, nu: float) -> float:
@@ -781,7 +848,7 @@ def not_assessed(reason: str) -> dict:
 
 
 def elastic_plastic_result(load_kN, disp_mm, specimen: Specimen, sec, a_mm: float,
-                           K_per_kN: float, kic_checks=None) -> dict:
+                           K_per_kN: float, kic_checks=None, extremes=None) -> dict:
     """J, K_J and CTOD of one record with their event, checks and verdicts, as JSON-ready data.
 
     Parameters
@@ -805,6 +872,10 @@ def elastic_plastic_result(load_kN, disp_mm, specimen: Specimen, sec, a_mm: floa
         ``precrack_kmax`` and ``surface_crack`` are carried into the
         verdicts.  Without them those checks are not assessed and no
         quantity can pass.
+    extremes : reduce.construction.BlockExtremes, optional
+        The block extremes of the same load array (from the construction),
+        so the searches for the point of interest need not read the whole
+        record again; made here when not given.
 
     Returns
     -------
@@ -828,9 +899,12 @@ def elastic_plastic_result(load_kN, disp_mm, specimen: Specimen, sec, a_mm: floa
     ----------
     ASTM E1820 Annexes A1–A2; ASTM E1921; BS 7448-1; ISO 12135 (module docstring).
     """
+    load = np.asarray(load_kN, dtype=float)
+    if extremes is None or extremes.load is not load:
+        extremes = BlockExtremes(load)
     try:
-        return _compute(np.asarray(load_kN, dtype=float), np.asarray(disp_mm, dtype=float),
-                        specimen, sec, a_mm, K_per_kN, kic_checks)
+        return _compute(load, np.asarray(disp_mm, dtype=float), specimen, sec, a_mm, K_per_kN,
+                        kic_checks, extremes)
     except ElasticPlasticError as exc:
         return not_assessed(str(exc))
 
@@ -852,7 +926,7 @@ def _point_note(poi: PointOfInterest) -> str:
             "reported for information, and their validity is not assessed")
 
 
-def _compute(load, disp, specimen, sec, a, K_per_kN, kic_checks) -> dict:
+def _compute(load, disp, specimen, sec, a, K_per_kN, kic_checks, extremes) -> dict:
     L = _limits()
     notes, assumptions = [], []
     geo = specimens.geometry(specimen.geometry)
@@ -876,15 +950,15 @@ def _compute(load, disp, specimen, sec, a, K_per_kN, kic_checks) -> dict:
         assumptions.append(sigma_note)
 
     k = sec.fit.slope
-    v = disp - sec.fit.origin_mm
+    v = _Shifted(disp, sec.fit.origin_mm)  # disp - v0, only where it is read
     pop_in = sec.i_Q if sec.curve_type == "II" else None
-    poi = point_of_interest(load, v, k, pop_in_index=pop_in, noise_sd_kN=sec.fit.residual_sd_kN)
+    poi = _point_of_interest(load, v, k, pop_in, sec.fit.residual_sd_kN, extremes)
     B_N = specimen.B_N or specimen.B
     W, B = specimen.W, specimen.B
     b0 = W - a
     K = poi.P_kN * K_per_kN
     i_join = min(sec.fit.index_range[0], poi.index)
-    A, A_pl = plastic_work(load, v, poi.index, k, i_join)
+    A, A_pl = _plastic_work(load, v, poi.index, k, i_join)
     if A_pl < 0.0:
         notes.append(f"plastic work {A_pl:.4g} J came out negative (linear within scatter): taken as 0")
         A_pl = 0.0

@@ -14,7 +14,7 @@ import numpy as np
 
 import specimens
 from reduce import rules as R
-from reduce.construction import loading_envelope, loading_rate, secant_construction
+from reduce.construction import construction_on_envelope, loading_rate
 from reduce.elastic_plastic import elastic_plastic_result
 from reduce.errors import CracktipError, ReductionError
 from reduce.models import Result, Specimen
@@ -187,11 +187,8 @@ def reduce_arrays(load_kN, disp_mm, specimen: Specimen, time_s=None, rules: str 
     if load.shape != disp.shape or load.ndim != 1:
         raise ReductionError("load and displacement must be 1-D arrays of the same length")
     # unloading-reloading cycles go first, so P_Q never comes from an unloading line
-    envelope = loading_envelope(load, disp)
-    if envelope.keep is not None:
-        load, disp = load[envelope.keep], disp[envelope.keep]
-        time_s = None if time_s is None else np.asarray(time_s, dtype=float)[envelope.keep]
-    sec = secant_construction(load, disp, R.secant_ratio())
+    made = construction_on_envelope(load, disp, R.secant_ratio(), time_s)
+    envelope, sec, load, disp, time_s = made.envelope, made.secant, made.load, made.disp, made.time
 
     kind = displacement_type_of(geo, specimen)
     front = specimens.crack_front_average(specimen.a_readings)
@@ -237,7 +234,7 @@ def reduce_arrays(load_kN, disp_mm, specimen: Specimen, time_s=None, rules: str 
         warnings=warnings_in_words(checks, advisory) + ([envelope.note] if envelope.note else []),
         record_sha256=record_sha256, record=specimen.record, specimen_data=specimen.describe(),
         extra={"elastic_plastic": elastic_plastic_result(load, disp, specimen, sec, a, K_per_kN,
-                                                         kic_checks=checks)},
+                                                         kic_checks=checks, extremes=made.extremes)},
     )
 
 

@@ -13,14 +13,29 @@ How a text record is read, and why:
 1. The first lines (at most ``_HEAD_LINES``) are sniffed as text to find the
    delimiter, the decimal mark, the header line, an optional unit line and
    the first data line.
-2. ``pandas.read_csv`` (C engine) parses the data once, with ``skiprows``
-   set to the first data line and ``header=None``.  The header is not parsed
-   by pandas; it was already read in step 1.
-3. Rows with empty, NaN or text cells in the used channels are dropped and
+2. The fast path (``reduce/_scan.c``, compiled on install; optional): the
+   file's bytes are scanned from the first data line straight into float64
+   columns of the channels used.  It takes only plain lines (numbers in
+   every used field, the same number of fields on every line, no quotes, no
+   blank lines before the end) and only numbers it converts exactly: at most
+   19 significant digits, an integer part of at most 2**53 and a decimal
+   exponent within +-22, so one IEEE 754 multiplication or division by an
+   exact power of ten gives the correctly rounded value (Clinger's fast path,
+   PLDI 1990), the value Python's ``float`` gives.  A record above
+   ``_SPLIT_BYTES`` is scanned in parts cut at line ends, one thread per
+   core (the scan releases the GIL).  At the first line it does not take,
+   the scan gives up and step 3 reads the whole file.
+3. Otherwise ``pandas.read_csv`` (C engine) parses the data once, with
+   ``skiprows`` set to the first data line and ``header=None``.  The header
+   is not parsed by pandas; it was already read in step 1.
+4. Rows with empty, NaN or text cells in the used channels are dropped and
    listed in :attr:`Record.notes`; one bad row never loses the others.
 
-Speed notes (measured with pandas 3.1 on this project's 2-core machine, a
-1,000,000-row CSV).  pandas 3.1 splits a large file across threads, but only
+Speed notes (measured on this project's 2-core machine, a 1,000,000-row
+CSV of 28.6 MB): pandas 3.1 parses it in about 45 ms, splitting it across
+both cores; the fast path scans it in about 20 ms in two threads, so the
+reduction after it and the SHA-256 fit in the time of the pandas parse.
+For the pandas path: pandas 3.1 splits a large file across threads only
 without ``usecols``, without ``on_bad_lines="warn"`` and with a UTF-8
 encoding; otherwise it parses serially, about twice as slowly.  So:
 
@@ -33,10 +48,10 @@ encoding; otherwise it parses serially, about twice as slowly.  So:
   ASCII in UTF-8, Latin-1 and cp1252 alike, and the header, which may not be,
   was decoded with the right codec in step 1;
 - the SHA-256 of a file above 1 MiB is computed in a second thread
-  (hashlib releases the GIL) that starts when pandas has parsed the file and
-  runs while the record is checked and reduced: pandas keeps both cores busy
-  while it parses a large file, the reduction after it uses one, so the hash
-  costs little wall time there.  :attr:`Record.sha256` waits for it.
+  (hashlib releases the GIL) that starts when the file has been parsed and
+  runs while the record is checked and reduced; it hashes the very bytes the
+  fast path scanned (or, after pandas, the file).  :attr:`Record.sha256`
+  waits for it.
 
 Hostile files: a text record above 1 GiB is refused before it is parsed
 (memory); an XLSX container is checked before openpyxl opens it: the sizes
@@ -79,6 +94,11 @@ import numpy as np
 from .errors import RecordError
 from .units import LENGTH_TO_MM, LOAD_TO_KN, STRESS_TO_MPA, TIME_TO_S
 
+try:  # the compiled fast path (reduce/_scan.c); optional, see the module notes
+    from . import _scan
+except ImportError:  # not built on this machine: every text record is parsed by pandas
+    _scan = None
+
 __all__ = ["Record", "check_workbook", "read_record", "sha256_file"]
 
 #: bytes and lines looked at to find the layout of a text record
@@ -92,6 +112,10 @@ _MAX_BAD_FRACTION = 0.5
 _LINES_LISTED = 10
 #: files above this size are hashed in a second thread (module notes)
 _THREAD_HASH_BYTES = 1 << 20
+#: text records above this size are scanned in parallel parts by the fast path
+_SPLIT_BYTES = 4 << 20
+#: bytes that may end a text file after its last data line
+_TRAILING = b" \t\r\n\x1a"
 #: hostile-file limits (module notes; project limits, common practice, no source)
 _MAX_RECORD_BYTES = 1 << 30
 _XLSX_MAX_UNPACKED = 1 << 30
@@ -158,6 +182,7 @@ _NUMBERS_LINE = {layout: _numbers_line(*layout) for layout in _TEXT_LAYOUTS}
 #: the DOS end-of-file mark 0x1A are allowed)
 _CONTROL_BYTES = bytes([*range(0, 9), 11, *range(14, 26), *range(27, 32), 127])
 _LINE_BREAK = re.compile(r"\r\n|\r|\n")
+_BYTE_LINE_BREAK = re.compile(rb"\r\n|\r|\n")
 _LONG_LINE = re.compile(r"Expected \d+ fields in line (\d+)")
 
 
@@ -211,18 +236,24 @@ class Record:
 
 
 class _Digest:
-    """The SHA-256 of a file, computed in a second thread; :meth:`result` waits."""
+    """The SHA-256 of a file (a path) or of its bytes, computed in a second
+    thread; :meth:`result` waits."""
 
-    def __init__(self, path):
-        self._path, self._hex, self._error = path, None, None
+    def __init__(self, source):
+        self._source, self._hex, self._error = source, None, None
         self._thread = threading.Thread(target=self._run, name="cracktip-sha256", daemon=True)
         self._thread.start()
 
     def _run(self):
         try:
-            self._hex = sha256_file(self._path)
+            if isinstance(self._source, bytes):
+                self._hex = hashlib.sha256(self._source).hexdigest()  # releases the GIL
+            else:
+                self._hex = sha256_file(self._source)
         except RecordError as exc:
             self._error = exc
+        finally:
+            self._source = None  # the bytes are not kept beyond the hash
 
     def result(self) -> str:
         self._thread.join()
@@ -374,8 +405,11 @@ def read_record(path, load_column=None, displacement_column=None, load_unit=None
     def choose(columns):
         return _choose_channels(path, columns, overrides)
 
-    parsed = _read_any(path, head, choose, size)
-    digest = sha256_file(path) if size <= _THREAD_HASH_BYTES else _Digest(path)
+    parsed, data = _read_any(path, head, choose, size)
+    if data is not None:  # the bytes parsed are the bytes hashed
+        digest = hashlib.sha256(data).hexdigest() if len(data) <= _THREAD_HASH_BYTES else _Digest(data)
+    else:
+        digest = sha256_file(path) if size <= _THREAD_HASH_BYTES else _Digest(path)
     return _finish(path, digest, *parsed)
 
 
@@ -418,7 +452,7 @@ def _read_head(path):
 
 def _read_any(path, head, choose, size):
     if head.startswith(b"PK\x03\x04"):
-        return _read_xlsx(path, choose)
+        return _read_xlsx(path, choose), None
     if head.startswith(b"\xd0\xcf\x11\xe0"):
         raise RecordError("is a legacy binary Excel (.xls) or other OLE file; save it as .xlsx, "
                           "CSV or TSV", file=path)
@@ -426,7 +460,7 @@ def _read_any(path, head, choose, size):
         raise RecordError(f"is {size / 2**30:.1f} GiB; text records above "
                           f"{_MAX_RECORD_BYTES / 2**30:.0f} GiB are refused (reading one takes "
                           "several times its size in memory); split the record", file=path)
-    return _read_text(path, head, choose)
+    return _read_text(path, head, choose, size)
 
 
 # --------------------------------------------------------------------------
@@ -882,9 +916,7 @@ def _text_layout(path, lines):
     return sep, decimal, start, rows
 
 
-def _read_text(path, head, choose):
-    import pandas as pd
-
+def _read_text(path, head, choose, size):
     truncated = len(head) == _HEAD_BYTES
     lines, encoding, encoding_note = _decode_head(path, head, truncated)
     sep, decimal, start, rows = _text_layout(path, lines)
@@ -905,6 +937,26 @@ def _read_text(path, head, choose):
                               f"({n_fields} fields in line {start + 1})", file=path,
                               column=columns[i].header)
 
+    notes = [encoding_note] if encoding_note else []
+    wide = [start + 1 + k for k, r in enumerate(rows[start:]) if len(r) > n_fields]
+    if wide:
+        notes.append(f"{_line_list(wide)}: more fields than the {n_fields} of the first data "
+                     "row; the extra fields are ignored")
+
+    def line_numbers(idx):
+        # 1-based file line of data row idx (blank lines are kept as rows)
+        return start + 1 + np.asarray(idx, dtype=np.int64)
+
+    data = None
+    if _scan is not None and encoding != "utf-16" and not wide:
+        data = head if not truncated else _read_bytes(path)
+        scanned = _scan_text(data, _line_offset(data, start), sep, decimal, n_fields, used)
+        if scanned is not None:
+            values, n_rows = scanned
+            return (columns, choice, values, _Rows(n_rows, line_numbers, "line"), notes), data
+
+    import pandas as pd
+
     data_rows = [r for r in rows[start:] if any(_clean(t) for t in r)]
     widths = {len(r) for r in data_rows}
     # usecols is slow in the C parser (module notes): only worth it when the
@@ -918,11 +970,6 @@ def _read_text(path, head, choose):
         engine="c", encoding=encoding, encoding_errors="replace", skip_blank_lines=False,
         quotechar='"',
     )
-    notes = [encoding_note] if encoding_note else []
-    wide = [start + 1 + k for k, r in enumerate(rows[start:]) if len(r) > n_fields]
-    if wide:
-        notes.append(f"{_line_list(wide)}: more fields than the {n_fields} of the first data "
-                     "row; the extra fields are ignored")
     if all_numeric:
         try:
             frame = _parse(path, options, sep, decimal, start, retry_long_lines=True)
@@ -939,12 +986,94 @@ def _read_text(path, head, choose):
         values[i] = _series_values(frame[i], decimal, pd, shared=frame.shape[1] > len(used))
     n_rows = len(frame)
     del frame
+    return (columns, choice, values, _Rows(n_rows, line_numbers, "line"), notes), data
 
-    def line_numbers(idx):
-        # 1-based file line of data row idx (blank lines are kept as rows)
-        return start + 1 + np.asarray(idx, dtype=np.int64)
 
-    return columns, choice, values, _Rows(n_rows, line_numbers, "line"), notes
+def _read_bytes(path):
+    try:
+        with open(path, "rb") as f:
+            return f.read()
+    except OSError as exc:
+        raise RecordError(f"cannot be read ({exc.strerror or exc})", file=path) from None
+
+
+def _line_offset(data, line):
+    """Byte offset of a 0-based line, counted as the sniffing counted them
+    (a line ends at CR LF, CR or LF)."""
+    pos = 0
+    for _ in range(line):
+        m = _BYTE_LINE_BREAK.search(data, pos)
+        if m is None:
+            return len(data)
+        pos = m.end()
+    return pos
+
+
+def _scan_text(data, begin, sep, decimal, n_fields, used):
+    """The used columns of a plain numeric text record by the compiled fast path.
+
+    Returns the values of each used column and the number of rows, or None
+    when any line is not plain (a text, empty or NaN cell, a quote, a blank,
+    short or long line, a number beyond the exact conversion; see
+    reduce/_scan.c): then pandas reads the file and reports what it finds.
+    A record above ``_SPLIT_BYTES`` is scanned in parts, one thread each
+    (the scan releases the GIL).
+    """
+    end = len(data)
+    tail = data[-4096:].rstrip(_TRAILING)
+    end -= min(len(data), 4096) - len(tail)
+    if not tail and len(data) > 4096:
+        end = len(data.rstrip(_TRAILING))
+    if end <= begin:
+        return None
+    if n_fields > 256:
+        return None
+    slots = tuple(used.index(f) if f in used else -1 for f in range(n_fields))
+    n_parts = min(len(os.sched_getaffinity(0)) if hasattr(os, "sched_getaffinity")
+                  else (os.cpu_count() or 1), 4) if end - begin > _SPLIT_BYTES else 1
+    bounds = [begin]
+    for k in range(1, n_parts):
+        cut = data.find(b"\n", begin + (end - begin) * k // n_parts, end)
+        if cut < 0 or cut + 1 <= bounds[-1]:
+            continue
+        bounds.append(cut + 1)
+    bounds.append(end)
+    parts = list(zip(bounds[:-1], bounds[1:]))
+    # rows of each part: its line feeds, and one more for the last line, which
+    # has none as the trailing line breaks were cut off
+    counts = _threaded([(_scan.count_lines, (data, b, e)) for b, e in parts])
+    counts[-1] += 1
+    total = sum(counts)
+    out = np.empty((len(used), total))
+    row0 = [sum(counts[:k]) for k in range(len(parts))]
+    done = _threaded([(_scan.scan, (data, b, e, sep, decimal, slots, out, total, r))
+                      for (b, e), r in zip(parts, row0)])
+    if any(stop != -1 or rows != n for (rows, stop), n in zip(done, counts)):
+        return None
+    return {f: _Values(out[k], None) for k, f in enumerate(used)}, total
+
+
+def _threaded(calls):
+    """Results of calls [(function, args)], all but the first in threads of their own."""
+    results = [None] * len(calls)
+
+    def run(k):
+        fn, args = calls[k]
+        try:
+            results[k] = fn(*args)
+        except Exception as exc:  # raised again in the calling thread
+            results[k] = exc
+
+    threads = [threading.Thread(target=run, args=(k,), daemon=True) for k in range(1, len(calls))]
+    for t in threads:
+        t.start()
+    run(0)
+    for t in threads:
+        t.join()
+    for r in results:
+        if isinstance(r, Exception):
+            raise r
+    return results
 
 
 class _LongLine(Exception):
@@ -986,8 +1115,8 @@ def _series_values(series, decimal, pd, shared):
         if series.dtype == np.float64:
             return _Values(series.to_numpy(), None, shared=shared)  # a view into the frame
         return _Values(series.to_numpy(dtype=np.float64, na_value=np.nan), None)
-    present = series.notna().to_numpy()
     as_text = series.astype(str)
+    present = (series.notna() & (as_text.str.strip() != "")).to_numpy()  # blanks are empty
     if decimal == ",":
         as_text = as_text.str.replace(",", ".", regex=False)
     numbers = pd.to_numeric(as_text, errors="coerce").to_numpy(dtype=np.float64, na_value=np.nan)
@@ -1284,7 +1413,9 @@ def _positive_sense(load, disp, choice, notes):
                      "counted negative by the rig): its sign was reversed")
     if load.size:
         i_peak = int(np.argmax(load))
-        if float(disp[i_peak]) < float(disp[0]) and float(np.median(disp[: i_peak + 1])) < float(disp[0]):
+        rising = disp[: i_peak + 1]
+        rising = rising[:: max(1, rising.size // 10_000)]  # a median of at most ~20,000 samples
+        if float(disp[i_peak]) < float(disp[0]) and float(np.median(rising)) < float(disp[0]):
             disp = np.negative(disp)
             disp.flags.writeable = False
             notes.append(f"displacement channel '{choice.disp.column.header}' decreases as the load "

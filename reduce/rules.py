@@ -53,7 +53,13 @@ class Check:
     note: str = ""
 
     def to_dict(self) -> dict:
-        return asdict(self)
+        """The check as a plain dict (as ``dataclasses.asdict``, without its deep copy of scalars)."""
+        d = {"name": self.name, "passed": self.passed, "value": self.value, "limit": self.limit,
+             "clause": self.clause, "note": self.note}
+        for v in d.values():
+            if isinstance(v, (list, tuple, dict, set)):
+                return asdict(self)  # containers are copied, as asdict does
+        return d
 
 
 @lru_cache(maxsize=None)

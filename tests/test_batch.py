@@ -43,7 +43,7 @@ def as_json(pairs):
     return results_json([r for r, _ in pairs])
 
 
-def test_parallel_equals_sequential_row_for_row(tmp_path):
+def test_parallel_equals_sequential_row_for_row(tmp_path, starter):
     rows = read_sheet(campaign(tmp_path))
     one = reduce_rows(rows, jobs=1)
     two = reduce_rows(rows, jobs=2)
@@ -78,7 +78,7 @@ def boom_for(name, how):
 
 
 @pytest.mark.parametrize("jobs", [1, 2])
-def test_unexpected_exception_costs_only_its_row(tmp_path, monkeypatch, jobs):
+def test_unexpected_exception_costs_only_its_row(tmp_path, monkeypatch, jobs, starter):
     from reduce import pipeline
 
     rows = read_sheet(campaign(tmp_path))
@@ -88,8 +88,15 @@ def test_unexpected_exception_costs_only_its_row(tmp_path, monkeypatch, jobs):
     assert all(out[f"S{i}"].error is None for i in (0, 1, 3, 4, 5, 6, 7))
 
 
+@pytest.fixture(params=["fork", "executor"])
+def starter(request, monkeypatch):
+    """Both ways of starting workers: forked children, and the executor used where there is no fork."""
+    monkeypatch.setattr(batch, "_CAN_FORK", request.param == "fork")
+    return request.param
+
+
 @pytest.mark.parametrize("n", [8, 40])  # one row a task; several rows a task
-def test_a_worker_that_dies_costs_only_its_row(tmp_path, monkeypatch, n):
+def test_a_worker_that_dies_costs_only_its_row(tmp_path, monkeypatch, n, starter):
     from reduce import pipeline
 
     rows = read_sheet(campaign(tmp_path, n=n))
@@ -99,6 +106,23 @@ def test_a_worker_that_dies_costs_only_its_row(tmp_path, monkeypatch, n):
     assert "internal error while reducing: the worker process stopped" in by_id["S5"].error
     assert all(by_id[f"S{i}"].error is None for i in range(n) if i != 5)
     assert [r.specimen for r, _ in out] == [x.specimen for x in rows]
+
+
+def test_thousands_of_tasks_come_back_in_order(tmp_path, monkeypatch, starter):
+    # more task numbers than one write to the task pipe holds; each result lands in its row
+    from reduce import pipeline
+
+    import dataclasses
+
+    def quick(specimen, rules="e399"):
+        return pipeline.failed_result(specimen.specimen, rules, "quick"), None
+
+    first = next(r for r in read_sheet(campaign(tmp_path)) if r.specimen == "S0")
+    rows = [dataclasses.replace(first, specimen=f"Q{k}") for k in range(3000)]
+    monkeypatch.setattr(pipeline, "reduce_specimen", quick)
+    monkeypatch.setattr(batch, "_CHUNK_ROWS", 1)
+    out = reduce_rows(rows, jobs=2)
+    assert [r.specimen for r, _ in out] == [f"Q{k}" for k in range(3000)]
 
 
 def test_several_sheets_and_a_folder(tmp_path):
@@ -168,7 +192,8 @@ def test_progress_only_on_a_terminal_and_not_when_quiet(tmp_path, monkeypatch):
 
 def test_one_row_is_reduced_in_process(tmp_path, monkeypatch):
     # no pool is started for a single row (start-up time of `cracktip reduce`)
-    monkeypatch.setattr(batch, "_pool", lambda workers: pytest.fail("a pool was started"))
+    for starter in ("_pool", "_forked", "_in_executor"):
+        monkeypatch.setattr(batch, starter, lambda *a: pytest.fail("workers were started"))
     rows = [r for r in read_sheet(campaign(tmp_path, n=1)) if r.specimen == "S0"]
     (result, _), = reduce_rows(rows, jobs=None)
     assert result.error is None

@@ -48,7 +48,7 @@ N_LONG = 1_000_000
 N_ORDINARY = 5_000  # samples of an ordinary record (e.g. 10 Hz for eight minutes)
 ROW = {"heat": "H1", "geometry": "C(T)", "B_mm": 25, "W_mm": 50, "a1_mm": 25.1, "a2_mm": 25.3,
        "a3_mm": 25.0, "yield_MPa": 500, "E_GPa": 72}
-CRACKTIP = "import sys; from reduce.cli import main; sys.exit(main(sys.argv[1:]))"
+CRACKTIP = "from reduce.cli import console; console()"  # what the `cracktip` script runs
 
 
 def write_record(path, rec):
@@ -130,9 +130,21 @@ def bench_reduce_vs_read(d, repeat):
     def read_only():
         read_record(path).sha256
 
+    from reduce import records
+
+    def reduce_pandas_only():  # as where the fast path could not be compiled
+        scan, records._scan = records._scan, None
+        try:
+            reduce_whole()
+        finally:
+            records._scan = scan
+
     reduce_whole()  # warm: file in the page cache, modules imported
     t = interleaved({"pandas.read_csv": lambda: pd.read_csv(path), "reduce": reduce_whole,
                      "read_record": read_only}, repeat)
+    # apart, so that pandas' memory use does not disturb the timings above
+    p = interleaved({"pandas.read_csv (again)": lambda: pd.read_csv(path),
+                     "reduce, pandas only": reduce_pandas_only}, max(3, repeat // 3))
     rec = read_record(path)
     parts = interleaved({
         "loading_envelope": lambda: loading_envelope(rec.load_kN, rec.disp_mm),
@@ -142,13 +154,15 @@ def bench_reduce_vs_read(d, repeat):
     ratio = min(t["reduce"]) / min(t["pandas.read_csv"])
     print(f"\n1. reduce vs read, {N_LONG:,}-sample CSV ({path.stat().st_size / 1e6:.1f} MB), "
           f"{repeat} rounds")
-    for k, v in {**t, **parts}.items():
+    for k, v in {**t, **p, **parts}.items():
         print(f"   {k:22s} median {med(v) * 1e3:7.1f} ms   min {min(v) * 1e3:7.1f} ms")
     ep = med(parts["reduce_arrays"]) - med(parts["loading_envelope"]) - med(parts["secant_construction"])
     print(f"   (reduce_arrays less envelope and construction, i.e. K, checks and the "
           f"elastic-plastic hook: {ep * 1e3:.1f} ms)")
     print(f"   ratio reduce / pandas: {ratio:.2f} (medians: "
           f"{med(t['reduce']) / med(t['pandas.read_csv']):.2f}); {verdict(ratio, 1.3)}")
+    print(f"   (without the compiled fast path: "
+          f"{min(p['reduce, pandas only']) / min(p['pandas.read_csv (again)']):.2f})")
     return ratio
 
 
@@ -170,6 +184,7 @@ def bench_scaling(d, repeat):
             [sys.executable, "-c", CRACKTIP, "reduce", str(d / "s400.csv"), "--jobs", str(jobs),
              "--quiet"], check=True, stdout=subprocess.DEVNULL, env=ENV, cwd=ROOT)
 
+    command(1)()  # warm: bytecode cached
     c = interleaved({"cracktip reduce --jobs 1": command(1), "cracktip reduce --jobs 2": command(2)},
                     repeat)
     growth = min(t["400 rows, 1 job"]) / min(t["100 rows, 1 job"])
@@ -193,6 +208,7 @@ def bench_startup(d, repeat):
     def run(cmd):
         return lambda: subprocess.run(cmd, check=True, stdout=subprocess.DEVNULL, env=ENV, cwd=ROOT)
 
+    run(floor)(), run(ours)()  # warm: bytecode cached
     t = interleaved({"numpy+pandas, read": run(floor), "cracktip reduce": run(ours)}, repeat)
     ratio = min(t["cracktip reduce"]) / min(t["numpy+pandas, read"])
     probe = ("import sys; from reduce.cli import main; main(sys.argv[1:]); "
@@ -250,6 +266,19 @@ def main():
         print(f"writing records to {d} ...", flush=True)
         make_data(d)
         print(f"python {sys.version.split()[0]}, {os.cpu_count()} cores; cracktip at {ROOT}")
+        # An installed program runs from compiled bytecode (pip compiles it on
+        # install).  The processes timed here get the same: their bytecode is
+        # cached in a folder of this run, even where PYTHONDONTWRITEBYTECODE
+        # is set, and each command is run once before it is timed.
+        ENV.pop("PYTHONDONTWRITEBYTECODE", None)
+        ENV["PYTHONPYCACHEPREFIX"] = str(d / "pycache")
+        print(f"bytecode of the timed processes cached in {d / 'pycache'}")
+        try:
+            from reduce import _scan  # noqa: F401
+            print("text records: compiled fast path (reduce/_scan.c)")
+        except ImportError:
+            print("text records: pandas only -- reduce._scan is not built "
+                  "(python3 -m pip install -e . builds it); the figures are not the product's")
         print(f"load average before: {load()}  (other work on the machine skews the figures)")
         results = {
             "reduce vs read (<= 1.3)": bench_reduce_vs_read(d, args.repeat),
