@@ -145,7 +145,10 @@ static scan_result scan_rows(const char *buf, Py_ssize_t begin, Py_ssize_t end, 
                 p++;
             if (slot[f] >= 0) {
                 double v;
-                if (!scan_number(&p, stop, decimal, &v)) {
+                if (!scan_number(&p, stop, decimal, &v) ||
+                    /* between whitespace-separated fields nothing but blanks: "1.2.3" or
+                       "9.5-0.1" is one field of text, not two numbers */
+                    (sep == ' ' && p < stop && !is_blank(*p, sep) && *p != '\n' && *p != '\r')) {
                     res.stop = p - buf;
                     return res;
                 }

@@ -265,7 +265,7 @@ def reduce_guarded(row, rules: str, keep_record: bool = True):
 
     try:
         result, rec = reduce_specimen(row, rules)
-    except Exception as exc:  # the whole-row guard: a bug must not stop the batch
+    except (Exception, SystemExit) as exc:  # the whole-row guard: a bug must not stop the batch
         return (_internal_error(row, rules, f"{type(exc).__name__}: {exc}"), None)
     return result, (rec if keep_record else None)
 
@@ -293,6 +293,13 @@ def _reduce_chunk(rows, rules, keep_records):
     return [reduce_guarded(row, rules, keep_records) for row in rows]
 
 
+def _sendable_chunk(rows, rules, keep_records):
+    """:func:`_reduce_chunk` for the executor, each result checked to be picklable, so that
+    one that is not costs only its own row (the results are pickled once more to send)."""
+    return [_picklable(one, row, rules) for one, row in zip(_reduce_chunk(rows, rules, keep_records),
+                                                            rows)]
+
+
 def _chunks(todo, workers):
     """The row indices cut into tasks that shrink towards the end.
 
@@ -311,35 +318,41 @@ def _chunks(todo, workers):
 def _in_pool(rows, todo, out, rules, keep_records, workers, bar):
     chunks = _chunks(todo, workers)
     run = _forked if _CAN_FORK else _in_executor
-    lost = run(rows, chunks, out, rules, keep_records, workers, bar)
+    lost = run(rows, chunks, out, rules, keep_records, workers, bar, in_process_fallback=True)
     # a worker died: every row it had not finished is tried again, alone, so
     # only the row that kills a worker is lost
     for i in sorted(lost):
-        if run(rows, [[i]], out, rules, keep_records, 1, bar):
+        if run(rows, [[i]], out, rules, keep_records, 1, bar, in_process_fallback=False):
             out[i] = (_internal_error(rows[i], rules, "the worker process stopped while reducing "
                                       "this row (out of memory, or killed)"), None)
             bar.update(1)
 
 
-def _in_executor(rows, chunks, out, rules, keep_records, workers, bar):
+def _in_executor(rows, chunks, out, rules, keep_records, workers, bar, in_process_fallback=True):
     """The tasks in a ProcessPoolExecutor; returns the rows of tasks lost with a worker."""
     from concurrent.futures import as_completed
     from concurrent.futures.process import BrokenProcessPool
 
     lost = []
     with _pool(workers) as pool:
-        futures = {pool.submit(_reduce_chunk, [rows[i] for i in chunk], rules, keep_records): chunk
+        futures = {pool.submit(_sendable_chunk, [rows[i] for i in chunk], rules, keep_records): chunk
                    for chunk in chunks}
-        for future in as_completed(futures):
-            chunk = futures[future]
-            try:
-                _put(out, chunk, future.result(), rules, rows)
-            except BrokenProcessPool:
-                lost.extend(chunk)
-                continue
-            except Exception as exc:  # e.g. a result that cannot be sent back
-                _put(out, chunk, exc, rules, rows)
-            bar.update(len(chunk))
+        try:
+            for future in as_completed(futures):
+                chunk = futures[future]
+                try:
+                    _put(out, chunk, future.result(), rules, rows)
+                except BrokenProcessPool:
+                    lost.extend(chunk)
+                    continue
+                except (Exception, SystemExit) as exc:  # e.g. a result that cannot be sent back
+                    _put(out, chunk, exc, rules, rows)
+                bar.update(len(chunk))
+        except KeyboardInterrupt:  # stop now: the tasks not begun are dropped, the workers stopped
+            pool.shutdown(wait=False, cancel_futures=True)
+            for process in list((getattr(pool, "_processes", None) or {}).values()):
+                process.terminate()  # the executor's own processes (no public way to stop them)
+            raise
     return lost
 
 
@@ -365,11 +378,16 @@ def _put(out, chunk, done, rules, rows):
 # which is what decides the speed-up on two cores.
 
 _TASK = 4  # bytes of a task number; writes of whole numbers up to PIPE_BUF are atomic
-_HEADER = 9  # kind (1 byte: R results, E error) + task (4) + length of what follows (4)
+_HEADER = 9  # kind (1 byte, R: results) + task (4) + length of what follows (4)
 
 
-def _forked(rows, chunks, out, rules, keep_records, workers, bar):
-    """The tasks in forked workers; returns the rows of tasks lost with a worker."""
+def _forked(rows, chunks, out, rules, keep_records, workers, bar, in_process_fallback=True):
+    """The tasks in forked workers; returns the rows of tasks lost with a worker.
+
+    When not even one worker can be started (the machine refuses a fork),
+    the tasks are reduced here, or, with ``in_process_fallback`` False,
+    returned as lost.
+    """
     import pickle
     import selectors
 
@@ -383,17 +401,43 @@ def _forked(rows, chunks, out, rules, keep_records, workers, bar):
     try:
         for _ in range(min(workers, len(chunks))):
             res_r, res_w = os.pipe()
-            pid = os.fork()
-            if pid == 0:  # the worker
+            # Ctrl-C waits until the worker is started and known here (then the
+            # workers are stopped below); a worker ignores it and is stopped so
+            mask = signal.pthread_sigmask(signal.SIG_BLOCK, {signal.SIGINT})
+            try:
+                pid = os.fork()
+            except OSError:  # no more processes or memory: go on with the workers there are
                 os.close(res_r)
-                os.close(task_w)
-                for fd in children:
-                    os.close(fd)
-                _worker(task_r, res_w, rows, chunks, rules, keep_records)  # never returns
-            os.close(res_w)
+                os.close(res_w)
+                signal.pthread_sigmask(signal.SIG_SETMASK, mask)
+                break
+            if pid == 0:  # the worker
+                try:
+                    signal.signal(signal.SIGINT, signal.SIG_IGN)
+                    signal.pthread_sigmask(signal.SIG_SETMASK, mask)
+                    os.close(res_r)
+                    os.close(task_w)
+                    for fd in children:
+                        os.close(fd)
+                    _worker(task_r, res_w, rows, chunks, rules, keep_records)
+                finally:
+                    os._exit(1)  # _worker never returns; nothing else may run here
             children[res_r] = (pid, bytearray())
+            signal.pthread_sigmask(signal.SIG_SETMASK, mask)
+            os.close(res_w)
         os.close(task_r)
         task_r = None
+        if not children:
+            os.close(task_w)
+            task_w = None
+            finished = True
+            if not in_process_fallback:
+                return [i for chunk in chunks for i in chunk]
+            for chunk in chunks:  # reduced here, as with one job
+                _put(out, chunk, _reduce_chunk([rows[i] for i in chunk], rules, keep_records),
+                     rules, rows)
+                bar.update(len(chunk))
+            return []
         with selectors.DefaultSelector() as sel:
             for fd in children:
                 sel.register(fd, selectors.EVENT_READ)
@@ -420,10 +464,14 @@ def _forked(rows, chunks, out, rules, keep_records, workers, bar):
                         open_children -= 1
                         continue
                     received += data
-                    for kind, k, payload in _messages(received):
-                        done = pickle.loads(payload) if kind == b"R" else RuntimeError(
-                            payload.decode("utf-8", "replace"))
-                        _put(out, chunks[k], done, rules, rows)
+                    for _, k, payload in _messages(received):
+                        # each row's result was pickled on its own: one that cannot be
+                        # read back costs only its row
+                        for i, one in zip(chunks[k], pickle.loads(payload), strict=True):
+                            try:
+                                out[i] = pickle.loads(one)
+                            except Exception as exc:
+                                _put(out, [i], exc, rules, rows)
                         bar.update(len(chunks[k]))
         finished = True
     finally:
@@ -465,17 +513,32 @@ def _worker(task_r, res_w, rows, chunks, rules, keep_records):
             if not got:
                 break
             k = int.from_bytes(got, "little")
-            try:
-                payload = pickle.dumps(_reduce_chunk([rows[i] for i in chunks[k]], rules,
-                                                     keep_records), protocol=pickle.HIGHEST_PROTOCOL)
-                kind = b"R"
-            except Exception as exc:  # e.g. a result that cannot be pickled
-                payload, kind = f"{type(exc).__name__}: {exc}".encode(), b"E"
-            _send(res_w, kind, k, payload)
+            task = [rows[i] for i in chunks[k]]
+            done = _reduce_chunk(task, rules, keep_records)
+            # each result pickled on its own: one that cannot be sent costs only its row
+            _send(res_w, b"R", k, pickle.dumps([_pickled(one, row, rules) for one, row
+                                                in zip(done, task)]))
     except BaseException:  # interrupted, or the pipe to the parent is gone
         code = 1
     finally:
         os._exit(code)  # no clean-up of the parent's objects, no flushing of its buffers
+
+
+def _pickled(one, row, rules) -> bytes:
+    """A row's (result, record) pickled, or, if it cannot be, its internal error pickled."""
+    import pickle
+
+    try:
+        return pickle.dumps(one, protocol=pickle.HIGHEST_PROTOCOL)
+    except Exception as exc:
+        return pickle.dumps((_internal_error(row, rules, "the result cannot be sent back "
+                                             f"({type(exc).__name__}: {exc})"), None))
+
+
+def _picklable(one, row, rules):
+    import pickle
+
+    return pickle.loads(_pickled(one, row, rules))
 
 
 def _send(fd, kind, k, payload):

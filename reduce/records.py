@@ -114,8 +114,9 @@ _LINES_LISTED = 10
 _THREAD_HASH_BYTES = 1 << 20
 #: text records above this size are scanned in parallel parts by the fast path
 _SPLIT_BYTES = 4 << 20
-#: bytes that may end a text file after its last data line
-_TRAILING = b" \t\r\n\x1a"
+#: bytes that may end a text file after its last data line (the fast path's view;
+#: anything else there, such as a DOS end-of-file mark, goes to pandas and its notes)
+_TRAILING = b" \t\r\n"
 #: hostile-file limits (module notes; project limits, common practice, no source)
 _MAX_RECORD_BYTES = 1 << 30
 _XLSX_MAX_UNPACKED = 1 << 30
@@ -970,6 +971,8 @@ def _read_text(path, head, choose, size):
         engine="c", encoding=encoding, encoding_errors="replace", skip_blank_lines=False,
         quotechar='"',
     )
+    if encoding != "utf-16" and any('"' in line for line in lines[:start]):
+        options["data_offset"] = _line_offset(head, start)
     if all_numeric:
         try:
             frame = _parse(path, options, sep, decimal, start, retry_long_lines=True)
@@ -1088,14 +1091,22 @@ def _parse(path, options, sep, decimal, start, retry_long_lines=False):
     """One call of ``pandas.read_csv``; its errors become RecordError."""
     import pandas as pd
 
+    options = dict(options)
+    offset = options.pop("data_offset", None)
     try:
         with warnings.catch_warnings():
             warnings.simplefilter("ignore")  # mixed-type chunks are handled after parsing
-            return pd.read_csv(path, **options)
+            if offset is None:
+                return pd.read_csv(path, **options)
+            # a quoted line break before the data: pandas would count that quoted
+            # field as one line, the sniffing counted two; start at the data's byte
+            with open(path, "rb") as f:
+                f.seek(offset)
+                return pd.read_csv(f, **dict(options, skiprows=0))
     except pd.errors.ParserError as exc:
         m = _LONG_LINE.search(str(exc))
-        if retry_long_lines and m:
-            raise _LongLine(int(m.group(1))) from None
+        if retry_long_lines and m:  # pandas counts lines from where it began
+            raise _LongLine(int(m.group(1)) + (start if offset is not None else 0)) from None
         problem = str(exc).strip()
     except (pd.errors.EmptyDataError, ValueError, UnicodeError, OverflowError, MemoryError) as exc:
         problem = str(exc).strip() or type(exc).__name__

@@ -125,6 +125,61 @@ def test_thousands_of_tasks_come_back_in_order(tmp_path, monkeypatch, starter):
     assert [r.specimen for r, _ in out] == [f"Q{k}" for k in range(3000)]
 
 
+class _Unpicklable:
+    def __reduce__(self):
+        raise TypeError("cannot pickle this")
+
+
+class _Unreadable:
+    def __reduce__(self):
+        return (_refuse, ())
+
+
+def _refuse():
+    raise ValueError("cannot read this back")
+
+
+@pytest.mark.parametrize("payload, expect", [
+    (_Unpicklable, "the result cannot be sent back (TypeError: cannot pickle this)"),
+    (_Unreadable, "ValueError: cannot read this back"),
+    ("exit", "internal error while reducing: SystemExit: 7"),
+])
+def test_a_result_that_cannot_travel_costs_only_its_row(tmp_path, monkeypatch, starter, payload,
+                                                        expect):
+    from reduce import pipeline
+
+    if starter == "executor" and payload is _Unreadable:
+        pytest.skip("the executor reports a result it cannot read back as a stopped worker")
+    real = pipeline.reduce_specimen
+
+    def odd(specimen, rules="e399"):
+        result, rec = real(specimen, rules)
+        if specimen.specimen == "S5":
+            if payload == "exit":
+                raise SystemExit(7)
+            result.metadata = {"odd": payload()}
+        return result, rec
+
+    rows = read_sheet(campaign(tmp_path, n=16))
+    monkeypatch.setattr(pipeline, "reduce_specimen", odd)
+    by_id = {r.specimen: r for r, _ in reduce_rows(rows, jobs=2)}
+    assert expect in (by_id["S5"].error or "")
+    assert all(by_id[f"S{i}"].error is None for i in range(16) if i != 5)
+
+
+def test_rows_are_reduced_here_when_no_worker_can_be_forked(tmp_path, monkeypatch):
+    def refuse():
+        raise BlockingIOError(11, "Resource temporarily unavailable")
+
+    monkeypatch.setattr(batch, "_CAN_FORK", True)
+    monkeypatch.setattr(batch.os, "fork", refuse)
+    rows = read_sheet(campaign(tmp_path))
+    before = set(os.listdir("/proc/self/fd"))
+    out = reduce_rows(rows, jobs=2)
+    assert as_json(out) == as_json(reduce_rows(rows, jobs=1))
+    assert set(os.listdir("/proc/self/fd")) == before  # no pipe left open
+
+
 def test_several_sheets_and_a_folder(tmp_path):
     a = campaign(tmp_path / "a", "A", n=3)
     campaign(tmp_path / "lab" / "b", "B", n=2)

@@ -173,7 +173,8 @@ def test_the_sample_text_records_take_the_fast_path(monkeypatch):
     assert taken and all(taken)
 
 
-LINE_KINDS = ["plain", "blank", "nan", "text", "quoted", "long", "short", "cr", "spaces", "huge"]
+LINE_KINDS = ["plain", "blank", "nan", "text", "quoted", "long", "short", "cr", "spaces", "huge",
+              "glued"]
 
 
 def _line(kind, i, sep, dec, rng):
@@ -194,6 +195,8 @@ def _line(kind, i, sep, dec, rng):
         vals = [f"  {v} " for v in vals]
     elif kind == "huge":
         vals[1] = "1" * 21
+    elif kind == "glued":  # one text field that starts like a number or two
+        vals[1] = rng.choice(["1.2.3", "9.5-0.1", "5.0x"])
     text = (sep if sep != " " else "   ").join(v.replace(".", dec) for v in vals)
     return text + ("\r" if kind == "cr" else "")
 
@@ -202,7 +205,7 @@ def _line(kind, i, sep, dec, rng):
 @given(layout=st.sampled_from([(",", "."), ("\t", "."), (";", ","), (" ", "."), ("\t", ",")]),
        kinds=st.lists(st.sampled_from(LINE_KINDS), min_size=0, max_size=4),
        n=st.integers(25, 300), seed=st.integers(0, 2**16), crlf=st.booleans(),
-       trailing=st.sampled_from(["", "\n", "\n\n", "\n  \n"]), split=st.booleans())
+       trailing=st.sampled_from(["", "\n", "\n\n", "\n  \n", "\n\x1a"]), split=st.booleans())
 @needs_scan
 def test_fast_path_equals_the_pandas_path(tmp_path_factory, monkeypatch, layout, kinds, n, seed,
                                           crlf, trailing, split):
@@ -233,7 +236,7 @@ def test_fast_path_equals_the_pandas_path(tmp_path_factory, monkeypatch, layout,
         m.setattr(records, "_scan", None)
         slow = read_record(path)
     _same_record(fast, slow)
-    plain = all(k in ("plain", "spaces") for k in kinds)
+    plain = all(k in ("plain", "spaces") for k in kinds) and "\x1a" not in trailing  # 0x1A: pandas
     if plain:
         assert taken == [True]  # nothing odd: the fast path took it
 
@@ -284,3 +287,33 @@ def test_count_lines_matches_python():
         data = bytes(rng.choice([10, 48, 44, 255], size=n).astype(np.uint8))
         for begin in range(0, min(n, 9)):
             assert records._scan.count_lines(data, begin, n) == data.count(b"\n", begin, n)
+
+
+@needs_scan
+@pytest.mark.parametrize("glued", ["1.2.3", "9.5-0.1", "5.0x", "-0.019-0.5"])
+def test_whitespace_fields_must_be_apart(tmp_path, monkeypatch, glued):
+    """In a whitespace layout "9.5-0.1" is one text field, never two numbers (a
+    reviewer's case: it was once read as load 9.5 and the next field -0.1)."""
+    rows = [f"{0.1 * i:.2f} {0.5 * i:.4f} 21.0 {0.001 * i:.5f}" for i in range(40)]
+    rows[20] = f"2.00 {glued} 4.5"
+    path = tmp_path / "w.txt"
+    path.write_text("Time(s) Load(kN) Temp(C) COD(mm)\n" + "\n".join(rows) + "\n")
+    fast, slow = _both_ways(path, monkeypatch)
+    _same_record(fast, slow)
+    assert fast.load_kN.size == 39 and "skipped (line 22)" in " ".join(fast.notes)
+
+
+def test_quoted_line_break_in_the_header_keeps_every_data_row(tmp_path, monkeypatch):
+    """A header cell with a line break inside quotes (Alt+Enter in a spreadsheet):
+    pandas counts it as one line, the sniffing as two; both paths keep all rows and
+    name the right lines (a reviewer's case)."""
+    rows = [f"{0.1 * i:.1f},{0.5 * i:.2f},{0.001 * i:.4f}" for i in range(40)]
+    rows[10] = "1.0,err,0.01"
+    path = tmp_path / "q.csv"
+    path.write_text('"Time\n(s)","Load (kN)","COD (mm)"\n' + "\n".join(rows) + "\n")
+    with monkeypatch.context() as m:
+        m.setattr(records, "_scan", None)
+        rec = read_record(path)
+    assert rec.load_kN.size == 39
+    assert rec.notes == ["1 row with text in numeric columns skipped (line 13)"]
+    assert rec.load_kN[0] == 0.0 and rec.load_kN[-1] == 19.5
