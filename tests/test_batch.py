@@ -164,7 +164,12 @@ def test_a_result_that_cannot_travel_costs_only_its_row(tmp_path, monkeypatch, s
     monkeypatch.setattr(pipeline, "reduce_specimen", odd)
     by_id = {r.specimen: r for r, _ in reduce_rows(rows, jobs=2)}
     assert expect in (by_id["S5"].error or "")
-    assert all(by_id[f"S{i}"].error is None for i in range(16) if i != 5)
+    hit = [i for i in range(16) if by_id[f"S{i}"].error is not None]
+    if payload is _Unreadable:  # found only when read back here: it costs its task, not the batch
+        assert all(expect in by_id[f"S{i}"].error for i in hit) and len(hit) <= batch._CHUNK_ROWS
+        assert len(hit) < 16
+    else:
+        assert hit == [5]
 
 
 def test_rows_are_reduced_here_when_no_worker_can_be_forked(tmp_path, monkeypatch):
