@@ -329,7 +329,11 @@ def _in_pool(rows, todo, out, rules, keep_records, workers, bar):
 
 
 def _in_executor(rows, chunks, out, rules, keep_records, workers, bar, in_process_fallback=True):
-    """The tasks in a ProcessPoolExecutor; returns the rows of tasks lost with a worker."""
+    """The tasks in a ProcessPoolExecutor; returns the rows of tasks lost with a worker.
+
+    ``in_process_fallback`` is taken for the same call as :func:`_forked` and not
+    used: an executor that cannot start its processes reports its tasks lost.
+    """
     from concurrent.futures import as_completed
     from concurrent.futures.process import BrokenProcessPool
 

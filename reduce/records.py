@@ -461,7 +461,7 @@ def _read_any(path, head, choose, size):
         raise RecordError(f"is {size / 2**30:.1f} GiB; text records above "
                           f"{_MAX_RECORD_BYTES / 2**30:.0f} GiB are refused (reading one takes "
                           "several times its size in memory); split the record", file=path)
-    return _read_text(path, head, choose, size)
+    return _read_text(path, head, choose)
 
 
 # --------------------------------------------------------------------------
@@ -917,7 +917,7 @@ def _text_layout(path, lines):
     return sep, decimal, start, rows
 
 
-def _read_text(path, head, choose, size):
+def _read_text(path, head, choose):
     truncated = len(head) == _HEAD_BYTES
     lines, encoding, encoding_note = _decode_head(path, head, truncated)
     sep, decimal, start, rows = _text_layout(path, lines)
