@@ -45,8 +45,8 @@ def _scan_one(token, decimal_mark="."):
     """(accepted, value) of one token as a one-field, one-row record."""
     data = token.encode("ascii")
     out = np.empty((1, 1))
-    rows, stop = records._scan.scan(data, 0, len(data), ",", decimal_mark, (0,), out, 1, 0) \
-        if decimal_mark == "." else records._scan.scan(data, 0, len(data), ";", ",", (0,), out, 1, 0)
+    sep = "," if decimal_mark == "." else ";"  # a delimiter other than the decimal mark
+    rows, stop = records._scan.scan(data, 0, len(data), sep, decimal_mark, (0,), out, 1, 0)
     return (stop == -1 and rows == 1), float(out[0, 0])
 
 
